@@ -1,0 +1,41 @@
+"""ldpcmarg: soft-output decoding lab for binary LDPC codes.
+
+Main entry points::
+
+    import ldpcmarg as lm
+    code = lm.load_code("tanner-155-64")
+    dec = lm.make_decoder("sum-product", code, max_iter=50)
+    res = dec.decode(llr)
+"""
+
+from ._version import __version__
+from .channels import make_channel
+from .code import ParityCheckCode
+from .decoders.base import DecodeResult, Decoder, decoder_names, make_decoder
+from .errors import InputError, LdpcmargError, SolverError, StoreError
+
+
+def load_code(name_or_path, **kwargs):
+    """Load a shipped code by name or a parity-check matrix file (.mtx, .txt, .npz).
+
+    See :func:`ldpcmarg.io.load_code`.
+    """
+    from .io import load_code as _load
+
+    return _load(name_or_path, **kwargs)
+
+
+__all__ = [
+    "__version__",
+    "ParityCheckCode",
+    "DecodeResult",
+    "Decoder",
+    "decoder_names",
+    "make_decoder",
+    "make_channel",
+    "load_code",
+    "LdpcmargError",
+    "InputError",
+    "SolverError",
+    "StoreError",
+]

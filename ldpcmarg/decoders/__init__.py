@@ -1,0 +1,11 @@
+"""Decoders: the protocol and registry live in :mod:`ldpcmarg.decoders.base`."""
+
+from .base import (
+    DecodeResult,
+    Decoder,
+    decoder_names,
+    make_decoder,
+    parse_decoder_spec,
+)
+
+__all__ = ["DecodeResult", "Decoder", "decoder_names", "make_decoder", "parse_decoder_spec"]
