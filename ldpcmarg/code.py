@@ -11,17 +11,26 @@ indices. Tanner-graph edges are numbered in check-major (CSR) order: edge
 from __future__ import annotations
 
 import hashlib
+import math
 from dataclasses import dataclass
 from functools import cached_property
 
+import numba as nb
 import numpy as np
 import scipy.sparse as sp
 
 from . import gf2
-from ._settings import DEFAULT_MAX_CHECK_DEGREE
+
+from ._settings import DEFAULT_MAX_CHECK_DEGREE, NUMBA_OPTS
 from .errors import InputError
 
-__all__ = ["ParityCheckCode", "LocalCodewords"]
+__all__ = [
+    "ParityCheckCode",
+    "LocalCodewords",
+    "DegreeDistributions",
+    "SystematicEncoder",
+    "MinimumDistance",
+]
 
 
 @dataclass(frozen=True)
@@ -66,6 +75,263 @@ def _even_patterns(d: int) -> np.ndarray:
     ints = np.arange(2**d, dtype=np.int64)
     bits = ((ints[:, None] >> np.arange(d)) & 1).astype(np.uint8)
     return bits[bits.sum(axis=1) % 2 == 0]
+
+
+@dataclass(frozen=True)
+class DegreeDistributions:
+    """Degree distributions of the Tanner graph, node and edge perspective.
+
+    Every array is indexed by degree ``d`` (length ``max degree + 1``) and sums
+    to 1 (edge arrays: to 0 when the graph has no edges).
+
+    Attributes
+    ----------
+    var_node : ndarray of float64
+        ``L_d``: fraction of bits of degree ``d`` (``d = 0`` counts unprotected bits).
+    check_node : ndarray of float64
+        ``R_d``: fraction of checks of degree ``d``.
+    var_edge : ndarray of float64
+        ``lambda_d``: fraction of edges attached to a bit of degree ``d``, so
+        ``lambda(x) = sum_d lambda_d x**(d-1)`` in the usual polynomial notation.
+    check_edge : ndarray of float64
+        ``rho_d``: fraction of edges attached to a check of degree ``d``;
+        ``rho(x) = sum_d rho_d x**(d-1)``.
+    """
+
+    var_node: np.ndarray
+    check_node: np.ndarray
+    var_edge: np.ndarray
+    check_edge: np.ndarray
+
+    def as_dict(self) -> dict:
+        """``{"var_node": {d: fraction}, ...}`` with only the nonzero degrees (JSON-ready)."""
+        out = {}
+        for key in ("var_node", "check_node", "var_edge", "check_edge"):
+            arr = getattr(self, key)
+            out[key] = {int(d): float(arr[d]) for d in np.flatnonzero(arr)}
+        return out
+
+
+def _node_edge_fractions(degrees: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    counts = np.bincount(degrees, minlength=1).astype(np.float64)
+    node = counts / max(counts.sum(), 1.0)
+    edges = counts * np.arange(counts.size)
+    edge = edges / edges.sum() if edges.sum() > 0 else edges
+    return node, edge
+
+
+@dataclass(frozen=True)
+class MinimumDistance:
+    """Result of :meth:`ParityCheckCode.minimum_distance`.
+
+    Attributes
+    ----------
+    value : int
+        The minimum distance when ``exact``; otherwise the weight of the
+        lightest nonzero codeword found, an upper bound. ``0`` means the code
+        has no nonzero codeword (``k = 0``).
+    exact : bool
+        True when every codeword was enumerated.
+    method : str
+        How the value was obtained (enumeration, or the search and its budget/seed).
+    witness : ndarray of shape (n,), uint8, or None
+        A nonzero codeword of weight ``value``.
+    """
+
+    value: int
+    exact: bool
+    method: str
+    witness: np.ndarray | None
+
+    def label(self) -> str:
+        """``"20 (exact)"`` or ``"<= 20 (upper bound)"``."""
+        if self.value == 0:
+            return "none (k = 0)"
+        return f"{self.value} (exact)" if self.exact else f"<= {self.value} (upper bound)"
+
+
+class SystematicEncoder:
+    """Systematic encoder of a code: information set plus the parity map.
+
+    The information positions are chosen by Gauss-Jordan elimination of ``H``
+    trying pivot (parity) columns from the right, so for ``H = [A | B]`` with
+    ``B`` invertible the information bits are the first ``k`` positions.
+
+    Parameters
+    ----------
+    code : ParityCheckCode
+
+    Attributes
+    ----------
+    info_positions : ndarray of shape (k,), int64
+        Increasing positions that carry the message bits unchanged.
+    parity_positions : ndarray of shape (n - k,), int64
+    n, k : int
+    """
+
+    def __init__(self, code: ParityCheckCode):
+        self._form = gf2.systematic_form(code.H)
+        self.n = code.n
+        self.k = self._form.k
+        self.info_positions = self._form.info
+        self.parity_positions = self._form.parity
+
+    def encode(self, msgs) -> np.ndarray:
+        """Codewords for messages.
+
+        Parameters
+        ----------
+        msgs : array_like of shape (F, k) or (k,), 0/1
+
+        Returns
+        -------
+        ndarray of shape (F, n) or (n,), uint8
+            ``c[:, info_positions] == msgs`` and ``H c = 0``.
+        """
+        arr = np.asarray(msgs)
+        single = arr.ndim == 1
+        M = np.atleast_2d(arr)
+        if M.ndim != 2 or M.shape[1] != self.k:
+            raise InputError(f"Expected messages of length k = {self.k}; got shape {arr.shape}.")
+        if M.size and np.any((M != 0) & (M != 1)):
+            raise InputError("Messages must contain only 0 and 1.")
+        out = gf2.apply_systematic(self._form, np.ascontiguousarray(M, dtype=np.uint8))
+        return out[0] if single else out
+
+    def extract(self, codewords) -> np.ndarray:
+        """Messages carried by codewords (the bits at ``info_positions``).
+
+        Parameters
+        ----------
+        codewords : array_like of shape (F, n) or (n,), 0/1
+
+        Returns
+        -------
+        ndarray of shape (F, k) or (k,), uint8
+        """
+        arr = np.asarray(codewords)
+        if arr.shape[-1] != self.n or arr.ndim not in (1, 2):
+            raise InputError(f"Expected words of length n = {self.n}; got shape {arr.shape}.")
+        return np.ascontiguousarray(arr[..., self.info_positions], dtype=np.uint8)
+
+    def generator_matrix(self) -> np.ndarray:
+        """Systematic generator matrix, shape (k, n), uint8 (identity at ``info_positions``)."""
+        return self.encode(np.eye(self.k, dtype=np.uint8)) if self.k else np.zeros(
+            (0, self.n), dtype=np.uint8)
+
+
+@nb.njit(**NUMBA_OPTS)
+def _neighbours(x, n, var_ptr, var_checks, check_ptr, edge_var, out):
+    """Write the Tanner-graph neighbours of node ``x`` into ``out``; return their count.
+
+    Nodes ``0..n-1`` are bits, ``n..n+m-1`` checks.
+    """
+    q = 0
+    if x < n:
+        for e in range(var_ptr[x], var_ptr[x + 1]):
+            out[q] = n + var_checks[e]
+            q += 1
+    else:
+        c = x - n
+        for e in range(check_ptr[c], check_ptr[c + 1]):
+            out[q] = edge_var[e]
+            q += 1
+    return q
+
+
+@nb.njit(**NUMBA_OPTS)
+def _girth_kernel(n, m, var_ptr, var_checks, check_ptr, edge_var, maxdeg):
+    """Length of the shortest cycle of the Tanner graph (0 if there is none).
+
+    BFS from every bit; a non-tree edge met at depth d closes a walk of length
+    ``dist[x] + dist[y] + 1`` >= the length of some cycle, and the minimum over
+    all roots is the girth. Search from a root stops once no shorter cycle can appear.
+    """
+    N = n + m
+    dist = np.full(N, -1, dtype=np.int64)
+    parent = np.full(N, -1, dtype=np.int64)
+    queue = np.empty(N, dtype=np.int64)
+    nb_buf = np.empty(maxdeg, dtype=np.int64)
+    best = N + 10
+    for root in range(n):
+        head = 0
+        tail = 0
+        queue[tail] = root
+        tail += 1
+        dist[root] = 0
+        parent[root] = -1
+        while head < tail:
+            x = queue[head]
+            head += 1
+            d = dist[x]
+            if 2 * d >= best:
+                break
+            q = _neighbours(x, n, var_ptr, var_checks, check_ptr, edge_var, nb_buf)
+            for a in range(q):
+                y = nb_buf[a]
+                if y == parent[x]:
+                    continue
+                if dist[y] < 0:
+                    dist[y] = d + 1
+                    parent[y] = x
+                    queue[tail] = y
+                    tail += 1
+                else:
+                    L = d + dist[y] + 1
+                    if L < best:
+                        best = L
+        for t in range(tail):
+            dist[queue[t]] = -1
+            parent[queue[t]] = -1
+    return 0 if best == N + 10 else best
+
+
+@nb.njit(**NUMBA_OPTS)
+def _cycle_count_kernel(n, m, var_ptr, var_checks, check_ptr, edge_var, maxdeg, girth):
+    """Number of cycles of length ``girth`` (even, > 0) in the Tanner graph.
+
+    From each bit, count shortest paths (sigma) up to depth ``L = girth/2``; any
+    two distinct shortest paths to a node at depth L close a cycle of length
+    ``girth`` (no shorter cycle exists), and each such cycle is seen once from
+    each of its L bits.
+    """
+    N = n + m
+    L = girth // 2
+    dist = np.full(N, -1, dtype=np.int64)
+    sigma = np.zeros(N, dtype=np.int64)
+    queue = np.empty(N, dtype=np.int64)
+    nb_buf = np.empty(maxdeg, dtype=np.int64)
+    total = 0
+    for root in range(n):
+        head = 0
+        tail = 0
+        queue[tail] = root
+        tail += 1
+        dist[root] = 0
+        sigma[root] = 1
+        while head < tail:
+            x = queue[head]
+            head += 1
+            d = dist[x]
+            if d >= L:
+                continue
+            q = _neighbours(x, n, var_ptr, var_checks, check_ptr, edge_var, nb_buf)
+            for a in range(q):
+                y = nb_buf[a]
+                if dist[y] < 0:
+                    dist[y] = d + 1
+                    sigma[y] = sigma[x]
+                    queue[tail] = y
+                    tail += 1
+                elif dist[y] == d + 1:
+                    sigma[y] += sigma[x]
+        for t in range(tail):
+            y = queue[t]
+            if dist[y] == L:
+                total += sigma[y] * (sigma[y] - 1) // 2
+            dist[y] = -1
+            sigma[y] = 0
+    return total // L
 
 
 class ParityCheckCode:
@@ -168,7 +434,7 @@ class ParityCheckCode:
     @cached_property
     def rank(self) -> int:
         """Rank of ``H`` over GF(2)."""
-        return gf2.rank(self.H.toarray())
+        return gf2.rank(self.H)
 
     @property
     def k(self) -> int:
@@ -227,6 +493,125 @@ class ParityCheckCode:
         bits = np.concatenate(chunks) if chunks else np.zeros(0, dtype=np.uint8)
         owner = np.repeat(np.arange(self.m, dtype=np.int64), counts)
         return LocalCodewords(offset=offset, bit_ptr=bit_ptr, bits=bits.astype(np.uint8), owner=owner)
+
+
+    # --------------------------------------------------------- graph structure
+    def _graph_args(self):
+        var_checks = self.edge_check[self.var_edges]
+        maxdeg = int(max(self.var_degrees.max(initial=0), self.check_degrees.max(initial=0), 1))
+        return (self.n, self.m, self.var_ptr, np.ascontiguousarray(var_checks),
+                self.check_ptr, self.edge_var, maxdeg)
+
+    @cached_property
+    def _girth_and_cycles(self) -> tuple[int, int]:
+        args = self._graph_args()
+        g = int(_girth_kernel(*args))
+        count = int(_cycle_count_kernel(*args, g)) if g > 0 else 0
+        return g, count
+
+    def girth(self) -> int:
+        """Length of the shortest cycle of the Tanner graph (a method, returning int).
+
+        Returns
+        -------
+        int
+            An even number >= 4, or ``0`` when the Tanner graph has no cycle
+            (a tree or forest). Cached after the first call.
+        """
+        return self._girth_and_cycles[0]
+
+    def girth_and_cycles(self) -> tuple[int, int]:
+        """``(girth, number of cycles of length girth)``; ``(0, 0)`` for a cycle-free graph."""
+        return self._girth_and_cycles
+
+    def degree_distributions(self) -> DegreeDistributions:
+        """Variable and check degree distributions, node and edge perspective."""
+        vn, ve = _node_edge_fractions(self.var_degrees)
+        cn, ce = _node_edge_fractions(self.check_degrees)
+        return DegreeDistributions(var_node=vn, check_node=cn, var_edge=ve, check_edge=ce)
+
+    @property
+    def zero_weight_columns(self) -> np.ndarray:
+        """Bits in no check (unprotected bits), int64 indices."""
+        return np.flatnonzero(self.var_degrees == 0).astype(np.int64)
+
+    @property
+    def zero_rows(self) -> np.ndarray:
+        """All-zero rows of ``H`` (checks on no bit), int64 indices."""
+        return np.flatnonzero(self.check_degrees == 0).astype(np.int64)
+
+    # ----------------------------------------------------------------- encoder
+    @cached_property
+    def encoder(self) -> SystematicEncoder:
+        """The systematic encoder (built on first use, then cached)."""
+        return SystematicEncoder(self)
+
+    @property
+    def info_positions(self) -> np.ndarray:
+        """Information set of :attr:`encoder`, shape (k,), int64."""
+        return self.encoder.info_positions
+
+    def encode(self, msgs) -> np.ndarray:
+        """Shorthand for ``self.encoder.encode(msgs)``: (F, k) -> (F, n) uint8."""
+        return self.encoder.encode(msgs)
+
+    # -------------------------------------------------------- weight structure
+    def weight_enumerator(self, max_k: int = 26) -> np.ndarray:
+        """Number of codewords of every weight, by exhaustive enumeration.
+
+        Parameters
+        ----------
+        max_k : int
+            Refuse (``InputError``) when ``k > max_k`` (``2**k`` codewords are visited).
+
+        Returns
+        -------
+        ndarray of shape (n + 1,), int64
+            ``A[w]`` = number of codewords of Hamming weight ``w``; ``A[0] = 1``.
+        """
+        if self.k > max_k:
+            raise InputError(
+                f"The weight enumerator visits 2**k codewords; k = {self.k} exceeds "
+                f"max_k = {max_k}."
+            )
+        hist, _ = gf2.enumerate_weights(self.encoder.generator_matrix())
+        return hist
+
+    def minimum_distance(self, max_exact_k: int = 26, budget: int = 300,
+                         seed: int = 0) -> MinimumDistance:
+        """Minimum distance: exact for small ``k``, otherwise a labelled upper bound.
+
+        Parameters
+        ----------
+        max_exact_k : int
+            Enumerate all ``2**k`` codewords (Gray-code order, bit-packed) when
+            ``k <= max_exact_k``.
+        budget : int
+            Otherwise, the number of random information sets tried by a
+            Lee-Brickell information-set search (``p = 2``); the lightest
+            codeword found is an upper bound. Work grows like
+            ``budget * (n * m**2 / 64 + k**2 * m / 64)`` word operations.
+        seed : int
+            Seed of the search (results are reproducible).
+
+        Returns
+        -------
+        MinimumDistance
+        """
+        if self.k == 0:
+            return MinimumDistance(0, True, "trivial code (k = 0): no nonzero codeword", None)
+        if self.k <= max_exact_k:
+            hist, witness = gf2.enumerate_weights(self.encoder.generator_matrix())
+            d = int(np.flatnonzero(hist[1:])[0]) + 1
+            return MinimumDistance(d, True, f"exhaustive enumeration of 2^{self.k} codewords",
+                                   witness)
+        if budget < 1:
+            raise InputError(f"The search budget must be an integer >= 1; got {budget}.")
+        w, witness = gf2.information_set_search(self.H, budget=int(budget), seed=int(seed))
+        return MinimumDistance(
+            int(w), False,
+            f"information-set search (Lee-Brickell, p=2), {budget} sets, seed {seed}",
+            witness)
 
     # ------------------------------------------------------------- operations
     def syndrome(self, x) -> np.ndarray:
