@@ -1,0 +1,806 @@
+"""Message-passing decoders: sum-product, min-sum family, layered, reweighted, bit flipping.
+
+All decoders work on the flat Tanner-graph arrays of
+:class:`~ldpcmarg.code.ParityCheckCode` (check-major edge order) and decode a
+batch of F frames at once; frames run in parallel (``numba.prange``), each
+frame owning its message buffers.
+
+Conventions
+-----------
+* LLR ``= ln P(x=0|y) - ln P(x=1|y)``; positive favours 0. Channel LLRs are
+  clipped to ``+-LLR_MAX`` (:mod:`ldpcmarg._settings`).
+* ``c2v[e]`` is the check-to-bit message on edge ``e``; the bit-to-check
+  message is the cavity value ``L[i] - c2v[e]`` (``L`` = posterior LLR).
+* One *iteration* is one update of every check-to-bit message (flooding) or
+  one sweep over all checks (layered). ``iterations == 0`` means the channel
+  hard decision already satisfied every check.
+* Early stop (default on): before each iteration the hard decision of the
+  current posterior is tested against every check; a frame stops as soon as
+  it is a codeword. The returned posterior is always ``channel LLR + sum of
+  the incoming check messages`` of the messages that were current at exit.
+
+Box-plus
+--------
+Sum-product computes ``tanh(|v|/2)`` of every input, forms the extrinsic
+products with prefix/suffix products (no division, so zero inputs from
+erasures are exact), and maps back with ``2 atanh(min(p, 1 - 2**-53))``. A
+saturated check therefore sends at most ``ln(2**54 - 1) ~ 37.4`` (float64
+messages) -- a bit error probability of ~6e-17 -- and never ``atanh(1) =
+inf``, whatever the input magnitude (BEC LLRs of ``+-1e4`` included). All
+operations act on magnitudes and signs separately, so decoding is exactly
+symmetric under codeword translation (sign flips).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numba as nb
+import numpy as np
+
+from .._params import Param
+from .._settings import LLR_MAX, NUMBA_OPTS
+from ..errors import InputError
+from .base import DecodeResult, Decoder
+
+__all__ = [
+    "SumProductDecoder",
+    "LayeredSumProductDecoder",
+    "MinSumDecoder",
+    "OffsetMinSumDecoder",
+    "LayeredMinSumDecoder",
+    "ReweightedSumProductDecoder",
+    "BitFlippingDecoder",
+]
+
+_MODE_SP = 0
+_MODE_MS = 1
+
+#: Largest float64 below 1: the clip applied to tanh products before atanh.
+_P_MAX64 = float(np.nextafter(1.0, 0.0))
+#: Same for float32 messages.
+_P_MAX32 = float(np.nextafter(np.float32(1.0), np.float32(0.0)))
+
+
+# --------------------------------------------------------------------- kernels
+@nb.njit(**NUMBA_OPTS)
+def _check_sp(v, out, d, pmax):
+    """Sum-product check update: ``out[k] = box-plus of v[j], j != k`` (first ``d`` entries).
+
+    ``v`` holds the incoming bit-to-check LLRs; ``out`` is used as scratch for
+    the prefix products. Exact sign handling, no division.
+    """
+    neg = 0
+    for k in range(d):
+        x = v[k]
+        if x < 0:
+            neg ^= 1
+            x = -x
+        # store tanh(|v|/2) in place of v, keep the sign in the total parity
+        v[k] = math.tanh(0.5 * x)
+    # prefix products
+    acc = v[0] * 0 + 1
+    for k in range(d):
+        out[k] = acc
+        acc = acc * v[k]
+    # suffix products combined with prefixes
+    acc = v[0] * 0 + 1
+    for k in range(d - 1, -1, -1):
+        p = out[k] * acc
+        acc = acc * v[k]
+        if p > pmax:
+            p = pmax
+        out[k] = 2.0 * math.atanh(p)
+    return neg
+
+
+@nb.njit(**NUMBA_OPTS)
+def _sp_signs(vsign, out, d, neg):
+    """Apply the extrinsic signs: ``out[k] *= (-1)**(neg xor vsign[k])``."""
+    for k in range(d):
+        if neg ^ vsign[k]:
+            out[k] = -out[k]
+
+
+@nb.njit(**NUMBA_OPTS)
+def _check_ms(v, out, d, alpha, beta, cap):
+    """Min-sum check update ``out[k] = sign * max(alpha*min_{j!=k}|v_j| - beta, 0)``, capped."""
+    min1 = np.inf
+    min2 = np.inf
+    idx = -1
+    neg = 0
+    for k in range(d):
+        x = v[k]
+        if x < 0:
+            neg ^= 1
+            x = -x
+        if x < min1:
+            min2 = min1
+            min1 = x
+            idx = k
+        elif x < min2:
+            min2 = x
+    m1 = alpha * min1 - beta
+    if m1 < 0.0:
+        m1 = 0.0
+    if m1 > cap:
+        m1 = cap
+    m2 = alpha * min2 - beta
+    if m2 < 0.0:
+        m2 = 0.0
+    if m2 > cap:
+        m2 = cap
+    for k in range(d):
+        mag = m2 if k == idx else m1
+        s = neg
+        if v[k] < 0:
+            s ^= 1
+        out[k] = -mag if s else mag
+
+
+@nb.njit(**NUMBA_OPTS)
+def _check_update(vbuf, sbuf, obuf, d, mode, alpha, beta, pmax, cap):
+    """Dispatch one check update; ``vbuf`` is clobbered by sum-product."""
+    if mode == _MODE_SP:
+        for k in range(d):
+            sbuf[k] = 1 if vbuf[k] < 0 else 0
+        neg = _check_sp(vbuf, obuf, d, pmax)
+        _sp_signs(sbuf, obuf, d, neg)
+    else:
+        _check_ms(vbuf, obuf, d, alpha, beta, cap)
+
+
+@nb.njit(**NUMBA_OPTS)
+def _first_unsatisfied(L, check_ptr, edge_var, start):
+    """Index of an unsatisfied check of the hard decision ``L < 0``, or -1.
+
+    The scan starts at check ``start`` and wraps around, so a check that failed
+    at the previous iteration (the likeliest to fail again) is tried first.
+    """
+    m = check_ptr.shape[0] - 1
+    for t in range(m):
+        c = start + t
+        if c >= m:
+            c -= m
+        par = 0
+        for e in range(check_ptr[c], check_ptr[c + 1]):
+            if L[edge_var[e]] < 0:
+                par ^= 1
+        if par:
+            return c
+    return -1
+
+
+@nb.njit(**NUMBA_OPTS)
+def _flood_frame(llr, check_ptr, edge_var, rho, weighted, mode, alpha, beta, damping,
+                 max_iter, early_stop, tol, pmax, c2v, L, Lnew, vbuf, sbuf, obuf):
+    """Flooding schedule on one frame.
+
+    Parameters (prior validation assumed)
+    ----------
+    llr : (n,) clipped channel LLRs.
+    rho : (m,) check weights, used when ``weighted`` (reweighted sum-product):
+        ``L_i = llr_i + sum_c rho_c c2v_ci``; otherwise weight 1.
+    c2v : (E,) check-to-bit messages, zero on entry; holds the final messages.
+    L : (n,) receives the posterior LLR; ``Lnew`` (n,) scratch.
+    vbuf, obuf : (dmax,) float scratch; sbuf : (dmax,) uint8 scratch.
+
+    Returns
+    -------
+    (iterations, valid, stopped_early)
+    """
+    n = llr.shape[0]
+    m = check_ptr.shape[0] - 1
+    cap = LLR_MAX
+    for i in range(n):
+        L[i] = llr[i]
+    it = 0
+    start = 0
+    stopped = False
+    while True:
+        if early_stop:
+            c = _first_unsatisfied(L, check_ptr, edge_var, start)
+            if c < 0:
+                return it, True, True
+            start = c
+        if it >= max_iter:
+            break
+        for i in range(n):
+            Lnew[i] = llr[i]
+        maxdelta = 0.0
+        for c in range(m):
+            a = check_ptr[c]
+            d = check_ptr[c + 1] - a
+            if d == 0:
+                continue
+            for k in range(d):
+                e = a + k
+                vbuf[k] = L[edge_var[e]] - c2v[e]
+            _check_update(vbuf, sbuf, obuf, d, mode, alpha, beta, pmax, cap)
+            w = rho[c] if weighted else 1.0
+            for k in range(d):
+                e = a + k
+                new = obuf[k]
+                old = c2v[e]
+                if damping > 0.0:
+                    new = (1.0 - damping) * new + damping * old
+                diff = abs(new - old)
+                if diff > maxdelta:
+                    maxdelta = diff
+                c2v[e] = new
+                if weighted:
+                    Lnew[edge_var[e]] += w * new
+                else:
+                    Lnew[edge_var[e]] += new
+        for i in range(n):
+            L[i] = Lnew[i]
+        it += 1
+        if tol > 0.0 and maxdelta <= tol:
+            stopped = True
+            break
+    ok = _first_unsatisfied(L, check_ptr, edge_var, start) < 0
+    return it, ok, stopped
+
+
+@nb.njit(**NUMBA_OPTS)
+def _layered_frame(llr, check_ptr, edge_var, mode, alpha, beta, damping, max_iter,
+                   early_stop, pmax, c2v, L, vbuf, sbuf, obuf):
+    """Layered (row-serial) schedule on one frame: checks updated one after another.
+
+    After check ``c`` is updated, the posteriors of its bits are refreshed
+    (``L_i <- (L_i - old c2v) + new c2v``) before the next check reads them.
+    Same buffers and return values as :func:`_flood_frame`.
+    """
+    n = llr.shape[0]
+    m = check_ptr.shape[0] - 1
+    cap = LLR_MAX
+    for i in range(n):
+        L[i] = llr[i]
+    it = 0
+    start = 0
+    while True:
+        if early_stop:
+            c = _first_unsatisfied(L, check_ptr, edge_var, start)
+            if c < 0:
+                return it, True, True
+            start = c
+        if it >= max_iter:
+            break
+        for c in range(m):
+            a = check_ptr[c]
+            d = check_ptr[c + 1] - a
+            if d == 0:
+                continue
+            for k in range(d):
+                e = a + k
+                vbuf[k] = L[edge_var[e]] - c2v[e]
+            for k in range(d):
+                obuf[k] = vbuf[k]
+            # keep the cavity values: sum-product clobbers its input buffer
+            _check_update(obuf, sbuf, vbuf[d:], d, mode, alpha, beta, pmax, cap)
+            for k in range(d):
+                e = a + k
+                new = vbuf[d + k]
+                if damping > 0.0:
+                    new = (1.0 - damping) * new + damping * c2v[e]
+                c2v[e] = new
+                L[edge_var[e]] = vbuf[k] + new
+        it += 1
+    ok = _first_unsatisfied(L, check_ptr, edge_var, start) < 0
+    return it, ok, False
+
+
+@nb.njit(parallel=True, **NUMBA_OPTS)
+def _flood_batch(llr, check_ptr, edge_var, rho, weighted, mode, alpha, beta, damping,
+                 max_iter, early_stop, tol, pmax, dmax, post, iters, valid, stopped):
+    """Flooding over a batch: ``llr`` (F, n) -> ``post`` (F, n), ``iters``/``valid``/``stopped`` (F,)."""
+    F, n = llr.shape
+    E = edge_var.shape[0]
+    for f in nb.prange(F):
+        c2v = np.zeros(E, dtype=post.dtype)
+        Lnew = np.empty(n, dtype=post.dtype)
+        vbuf = np.empty(2 * dmax + 1, dtype=post.dtype)
+        obuf = np.empty(2 * dmax + 1, dtype=post.dtype)
+        sbuf = np.empty(dmax + 1, dtype=np.uint8)
+        it, ok, st = _flood_frame(llr[f], check_ptr, edge_var, rho, weighted, mode, alpha,
+                                  beta, damping, max_iter, early_stop, tol, pmax, c2v, post[f],
+                                  Lnew, vbuf, sbuf, obuf)
+        iters[f] = it
+        valid[f] = ok
+        stopped[f] = st
+
+
+@nb.njit(parallel=True, **NUMBA_OPTS)
+def _layered_batch(llr, check_ptr, edge_var, mode, alpha, beta, damping, max_iter,
+                   early_stop, pmax, dmax, post, iters, valid):
+    """Layered schedule over a batch (see :func:`_layered_frame`)."""
+    F, n = llr.shape
+    E = edge_var.shape[0]
+    for f in nb.prange(F):
+        c2v = np.zeros(E, dtype=post.dtype)
+        vbuf = np.empty(2 * dmax + 1, dtype=post.dtype)
+        obuf = np.empty(2 * dmax + 1, dtype=post.dtype)
+        sbuf = np.empty(dmax + 1, dtype=np.uint8)
+        it, ok, _ = _layered_frame(llr[f], check_ptr, edge_var, mode, alpha, beta, damping,
+                                   max_iter, early_stop, pmax, c2v, post[f], vbuf, sbuf, obuf)
+        iters[f] = it
+        valid[f] = ok
+
+
+@nb.njit(**NUMBA_OPTS)
+def _local_beliefs_kernel(L, c2v, check_ptr, edge_var, lc_offset, lc_bit_ptr, lc_bits, out):
+    """Check beliefs ``tau_c(S) ~ exp(-sum_{t} S_t v_t)`` with ``v_t = L_i - c2v_e`` (cavity LLRs).
+
+    ``out`` (number of local codewords,) receives the normalised beliefs in the
+    flat :class:`~ldpcmarg.code.LocalCodewords` layout.
+    """
+    m = check_ptr.shape[0] - 1
+    for c in range(m):
+        a = check_ptr[c]
+        d = check_ptr[c + 1] - a
+        j0 = lc_offset[c]
+        cnt = lc_offset[c + 1] - j0
+        b0 = lc_bit_ptr[c]
+        best = -np.inf
+        for j in range(cnt):
+            s = 0.0
+            for t in range(d):
+                if lc_bits[b0 + j * d + t]:
+                    e = a + t
+                    s -= L[edge_var[e]] - c2v[e]
+            out[j0 + j] = s
+            if s > best:
+                best = s
+        tot = 0.0
+        for j in range(cnt):
+            w = math.exp(out[j0 + j] - best)
+            out[j0 + j] = w
+            tot += w
+        for j in range(cnt):
+            out[j0 + j] /= tot
+
+
+@nb.njit(parallel=True, **NUMBA_OPTS)
+def _bitflip_batch(hard, check_ptr, edge_var, var_ptr, var_edges, edge_check, max_iter,
+                   bits, iters, valid):
+    """Parallel hard-decision bit flipping (Gallager-style majority rule) over a batch.
+
+    Each iteration computes the syndrome; every bit for which more than half of
+    its checks are unsatisfied is flipped. If no bit passes that threshold, the
+    bits with the largest number of unsatisfied checks are flipped instead
+    (so the decoder never stalls on a nonzero syndrome).
+    """
+    F, n = hard.shape
+    m = check_ptr.shape[0] - 1
+    for f in nb.prange(F):
+        x = bits[f]
+        for i in range(n):
+            x[i] = hard[f, i]
+        syn = np.zeros(m, dtype=np.uint8)
+        it = 0
+        ok = False
+        while True:
+            nunsat = 0
+            for c in range(m):
+                par = 0
+                for e in range(check_ptr[c], check_ptr[c + 1]):
+                    par ^= x[edge_var[e]]
+                syn[c] = par
+                nunsat += par
+            if nunsat == 0:
+                ok = True
+                break
+            if it >= max_iter:
+                break
+            best = 0
+            flipped = 0
+            for i in range(n):
+                u = 0
+                for t in range(var_ptr[i], var_ptr[i + 1]):
+                    u += syn[edge_check[var_edges[t]]]
+                deg = var_ptr[i + 1] - var_ptr[i]
+                if 2 * u > deg:
+                    x[i] ^= 1
+                    flipped += 1
+                if u > best:
+                    best = u
+            if flipped == 0:
+                for i in range(n):
+                    u = 0
+                    for t in range(var_ptr[i], var_ptr[i + 1]):
+                        u += syn[edge_check[var_edges[t]]]
+                    if u == best:
+                        x[i] ^= 1
+            it += 1
+        iters[f] = it
+        valid[f] = ok
+
+
+# -------------------------------------------------------------------- options
+def _common_params(damping_default: float = 0.0) -> dict[str, Param]:
+    return {
+        "max_iter": Param("int", 50, low=1, doc="maximum number of iterations"),
+        "early_stop": Param("bool", True,
+                            doc="stop a frame as soon as its hard decision satisfies every check"),
+        "damping": Param("float", damping_default, low=0.0, high=1.0, high_open=True,
+                         doc="message damping d: new = (1-d) * update + d * old"),
+        "precision": Param("choice", "float64", choices=("float64", "float32"),
+                           doc="floating type of the messages (posteriors are returned as float64)"),
+        "threads": Param("int", 0, low=0,
+                         doc="threads for the frame-parallel loop (0 = numba's current setting)"),
+    }
+
+
+class _Threads:
+    """Context manager setting numba's thread count for one call, then restoring it."""
+
+    def __init__(self, threads: int):
+        self.threads = int(threads)
+        self.old = None
+
+    def __enter__(self):
+        if self.threads > 0:
+            self.old = nb.get_num_threads()
+            nb.set_num_threads(min(self.threads, nb.config.NUMBA_NUM_THREADS))
+        return self
+
+    def __exit__(self, *exc):
+        if self.old is not None:
+            nb.set_num_threads(self.old)
+        return False
+
+
+class _MessagePassing(Decoder):
+    """Shared machinery of the soft-output message-passing decoders."""
+
+    _mode = _MODE_SP
+    _layered = False
+    _weighted = False
+
+    def _setup(self) -> None:
+        c = self.code
+        self._dmax = int(c.check_degrees.max()) if c.m else 0
+        self._rho = np.ones(max(c.m, 1), dtype=np.float64)
+
+    def _alpha_beta(self) -> tuple[float, float]:
+        return 1.0, 0.0
+
+    def _tol(self) -> float:
+        return 0.0
+
+    def _run(self, llr: np.ndarray, *, max_iter: int, early_stop: bool, tol: float):
+        """Run the kernel on (F, n) float64 LLRs; returns (post, iters, valid, stopped)."""
+        c = self.code
+        dtype = np.float32 if self.options["precision"] == "float32" else np.float64
+        x = np.clip(llr, -LLR_MAX, LLR_MAX).astype(dtype, copy=False)
+        x = np.ascontiguousarray(x)
+        F = x.shape[0]
+        post = np.empty((F, c.n), dtype=dtype)
+        iters = np.zeros(F, dtype=np.int64)
+        valid = np.zeros(F, dtype=np.bool_)
+        stopped = np.zeros(F, dtype=np.bool_)
+        alpha, beta = self._alpha_beta()
+        pmax = _P_MAX32 if dtype == np.float32 else _P_MAX64
+        with _Threads(self.options["threads"]):
+            if self._layered:
+                _layered_batch(x, c.check_ptr, c.edge_var, self._mode, float(alpha), float(beta),
+                               float(self.options["damping"]), int(max_iter), bool(early_stop),
+                               pmax, self._dmax, post, iters, valid)
+            else:
+                _flood_batch(x, c.check_ptr, c.edge_var, self._rho, self._weighted, self._mode,
+                             float(alpha), float(beta), float(self.options["damping"]),
+                             int(max_iter), bool(early_stop), float(tol), pmax, self._dmax, post,
+                             iters, valid, stopped)
+        return post.astype(np.float64, copy=False), iters, valid, stopped
+
+    def _decode(self, llr: np.ndarray) -> DecodeResult:
+        post, iters, valid, _ = self._run(llr, max_iter=self.options["max_iter"],
+                                          early_stop=self.options["early_stop"], tol=self._tol())
+        return DecodeResult(bits=(post < 0).astype(np.uint8), posterior_llr=post,
+                            iterations=iters, valid=valid, info={})
+
+
+class SumProductDecoder(_MessagePassing):
+    """Sum-product (belief propagation) in the LLR domain, flooding schedule.
+
+    Check update ``c2v_{c->i} = 2 atanh( prod_{j in N(c)\\i} tanh(v_{j->c} / 2) )``
+    with a numerically safe implementation (module docstring); bit update
+    ``v_{i->c} = L_i - c2v_{c->i}``, ``L_i = llr_i + sum_c c2v_{c->i}``.
+    Exact on cycle-free Tanner graphs once the number of iterations reaches
+    the graph's diameter (Pearl 1988).
+
+    Options: ``max_iter`` (50), ``early_stop`` (True), ``damping`` (0),
+    ``precision`` ("float64"), ``threads`` (0 = numba default).
+    """
+
+    name = "sum-product"
+    description = "Sum-product (belief propagation) in the LLR domain, flooding schedule."
+    params = _common_params()
+
+
+class LayeredSumProductDecoder(SumProductDecoder):
+    """Sum-product with a layered (row-serial) schedule; same options as sum-product."""
+
+    name = "layered-sum-product"
+    description = "Sum-product with a layered (row-serial) schedule."
+    params = _common_params()
+    _layered = True
+
+
+class MinSumDecoder(_MessagePassing):
+    """Normalised min-sum, flooding: ``c2v = alpha * prod sign(v_j) * min |v_j|`` over ``j != i``.
+
+    ``alpha = 1`` is plain min-sum. Messages are capped at ``LLR_MAX``.
+    """
+
+    name = "min-sum"
+    description = "Normalised min-sum, flooding (alpha=1 is plain min-sum)."
+    params = {**_common_params(),
+              "alpha": Param("float", 1.0, low=0.0, high=1.0, low_open=True,
+                             doc="normalisation factor multiplying the check messages")}
+    _mode = _MODE_MS
+
+    def _alpha_beta(self):
+        return self.options["alpha"], 0.0
+
+
+class OffsetMinSumDecoder(_MessagePassing):
+    """Offset min-sum, flooding: ``c2v = prod sign(v_j) * max(min |v_j| - beta, 0)`` over ``j != i``.
+
+    ``beta`` is in LLR units (channel LLRs ``2 y / sigma**2`` for BPSK/AWGN).
+    """
+
+    name = "offset-min-sum"
+    description = "Offset min-sum, flooding (offset beta)."
+    params = {**_common_params(),
+              "beta": Param("float", 0.5, low=0.0,
+                            doc="offset subtracted from check-message magnitudes (LLR units)")}
+    _mode = _MODE_MS
+
+    def _alpha_beta(self):
+        return 1.0, self.options["beta"]
+
+
+class LayeredMinSumDecoder(MinSumDecoder):
+    """Normalised min-sum with a layered (row-serial) schedule; options as min-sum."""
+
+    name = "layered-min-sum"
+    description = "Normalised min-sum with a layered schedule."
+    params = dict(MinSumDecoder.params)
+    _layered = True
+
+
+class ReweightedSumProductDecoder(_MessagePassing):
+    r"""Tree-reweighted (fractional) sum-product with check weights ``rho``, flooding, damped.
+
+    Target free energy (DESIGN.md §5), on the local polytope:
+
+    .. math::
+
+        F(\tau) = \sum_i \lambda_i \tau_i - \Big[\sum_c \rho_c H(\tau_c)
+                  + \sum_i \big(1 - \sum_{c \ni i} \rho_c\big) H(\tau_i)\Big].
+
+    **Updates.** With check-to-bit messages :math:`\ell_{c\to i}` (LLRs):
+
+    * posterior   :math:`L_i = \lambda_i + \sum_{c \ni i} \rho_c \ell_{c\to i}`;
+    * cavity      :math:`v_{i\to c} = L_i - \ell_{c\to i}` (the *full* message is
+      removed, not :math:`\rho_c \ell_{c\to i}`);
+    * check       :math:`\ell_{c\to i} = \boxplus_{j \in N(c)\setminus i} v_{j\to c}`
+      (ordinary box-plus, because :math:`\psi_c^{1/\rho_c}` is still the parity
+      indicator), then damping :math:`\ell \leftarrow (1-d)\ell + d\,\ell_{old}`.
+
+    **Beliefs.** :math:`\tau_i = P(x_i = 1) = 1/(1 + e^{L_i})` and, over the
+    even-weight local codewords :math:`S` of check :math:`c`,
+    :math:`\tau_c(S) \propto \exp(-\sum_{i\in c} S_i v_{i\to c})`.
+
+    **Derivation.** Stationarity of the Lagrangian of :math:`F` with
+    multipliers :math:`\mu_{ci}(x_i)` on the edge constraints
+    :math:`\tau_i = \sum_{S \ni i} \tau_c(S)` gives
+    :math:`\tau_c(S) \propto \exp(\sum_{i} \mu_{ci}(S_i)/\rho_c)` and
+    :math:`\kappa_i \ln \tau_i(x) = -\lambda_i x - \sum_c \mu_{ci}(x) + \text{const}`
+    with :math:`\kappa_i = 1 - \sum_{c\ni i}\rho_c`. Choosing
+    :math:`\mu_{ci}(x) = \rho_c\,[\ln \tau_i(x) - \ln M_{c\to i}(x)]` (message
+    :math:`M` with LLR :math:`\ell`) satisfies the check condition with the
+    belief above, and the bit condition reduces to
+    :math:`\ln \tau_i = -\lambda_i x + \sum_c \rho_c \ln M_{c\to i}(x)`, i.e.
+    the posterior rule. At a fixed point the check update makes the marginal
+    of :math:`\tau_c` on bit :math:`i` equal to :math:`v_{i\to c} +
+    \ell_{c\to i} = L_i`, so the beliefs lie in the local polytope and are a
+    stationary point of :math:`F`. With every :math:`\rho_c = 1` the updates are
+    those of sum-product, operation for operation (multiplying by 1.0 is exact),
+    so the results are identical bit for bit.
+
+    Options
+    -------
+    rho : float, ndarray of shape (m,), or "trw"
+        Check weights (>= 0). Default 1.0 (Bethe, i.e. sum-product with damping).
+        ``"trw"`` samples hyperforests with
+        :func:`ldpcmarg.hyperforest.trw_check_weights` (``trw_samples``,
+        ``trw_seed``), giving a convex free energy.
+    damping : float in [0, 1)
+        Default 0.5: reweighted updates with ``rho < 1`` feed back
+        ``(1 - rho_c)`` of a bit's own message and oscillate without damping.
+    tol : float >= 0
+        Also stop a frame when no message moved by more than ``tol`` in an
+        iteration (0 disables). Default 0.
+    local_beliefs : bool
+        Put the check beliefs ``tau_c`` of every frame in
+        ``info["local_beliefs"]`` (F, L) float64. Default False.
+    """
+
+    name = "reweighted-sum-product"
+    description = "Tree-reweighted sum-product with edge weights rho (damped)."
+    params = {
+        **_common_params(damping_default=0.5),
+        "rho": Param("any", 1.0, doc="check weights: a number, an array of shape (m,), or 'trw'"),
+        "trw_samples": Param("int", 200, low=1,
+                             doc="number of sampled hyperforests when rho='trw'"),
+        "trw_seed": Param("int", 0, low=0, doc="seed of the hyperforest sampler when rho='trw'"),
+        "tol": Param("float", 0.0, low=0.0,
+                     doc="stop when the largest message change is <= tol (0 = off)"),
+        "local_beliefs": Param("bool", False,
+                               doc="return check beliefs over local codewords in info"),
+    }
+    _weighted = True
+
+    def _setup(self) -> None:
+        super()._setup()
+        self._rho = self._resolve_rho(self.options["rho"])
+        self.rho = self._rho[: self.code.m].copy()
+
+    def _resolve_rho(self, rho) -> np.ndarray:
+        m = self.code.m
+        if isinstance(rho, str):
+            if rho.strip().lower() != "trw":
+                raise InputError(
+                    f"The 'rho' option of {self.name} must be a number, an array of shape "
+                    f"({m},) or 'trw'; got {rho!r}."
+                )
+            try:
+                from .. import hyperforest
+            except ModuleNotFoundError as exc:
+                raise InputError(
+                    "rho='trw' needs ldpcmarg.hyperforest, which is not available in this build."
+                ) from exc
+            arr = hyperforest.trw_check_weights(
+                self.code, num_samples=self.options["trw_samples"], seed=self.options["trw_seed"]
+            )
+            arr = np.asarray(arr, dtype=np.float64)
+        elif np.isscalar(rho) and not isinstance(rho, bool):
+            try:
+                val = float(rho)
+            except (TypeError, ValueError):
+                val = float("nan")
+            arr = np.full(m, val, dtype=np.float64)
+        else:
+            try:
+                arr = np.asarray(rho, dtype=np.float64)
+            except (TypeError, ValueError) as exc:
+                raise InputError(
+                    f"The 'rho' option of {self.name} must be numeric; got {type(rho).__name__}."
+                ) from exc
+        if arr.shape != (m,):
+            raise InputError(
+                f"The 'rho' option of {self.name} must be a number or an array of shape ({m},); "
+                f"got shape {arr.shape}."
+            )
+        if not np.all(np.isfinite(arr)) or np.any(arr < 0):
+            raise InputError(f"The 'rho' option of {self.name} must hold finite values >= 0.")
+        return np.ascontiguousarray(arr if m else np.ones(1))
+
+    @property
+    def spec(self) -> str:
+        s = super().spec
+        rho = self.options["rho"]
+        if isinstance(rho, str | int | float) and rho != 1.0:
+            s += ("," if ":" in s else ":") + f"rho={rho}"
+        return s
+
+    def _tol(self) -> float:
+        return float(self.options["tol"])
+
+    def _decode(self, llr: np.ndarray) -> DecodeResult:
+        post, iters, valid, stopped = self._run(
+            llr, max_iter=self.options["max_iter"], early_stop=self.options["early_stop"],
+            tol=self._tol())
+        info = {"converged": stopped}
+        if self.options["local_beliefs"]:
+            info["local_beliefs"] = np.stack([self._beliefs_one(row)[1] for row in llr])
+        return DecodeResult(bits=(post < 0).astype(np.uint8), posterior_llr=post,
+                            iterations=iters, valid=valid, info=info)
+
+    def _beliefs_one(self, llr_row, max_iter=None, tol=None, early_stop=None):
+        c = self.code
+        lc = c.local_codewords()
+        dtype = np.float32 if self.options["precision"] == "float32" else np.float64
+        x = np.clip(np.asarray(llr_row, dtype=np.float64), -LLR_MAX, LLR_MAX).astype(dtype)
+        c2v = np.zeros(c.num_edges, dtype=dtype)
+        L = np.empty(c.n, dtype=dtype)
+        Lnew = np.empty(c.n, dtype=dtype)
+        vbuf = np.empty(2 * self._dmax + 1, dtype=dtype)
+        obuf = np.empty(2 * self._dmax + 1, dtype=dtype)
+        sbuf = np.empty(self._dmax + 1, dtype=np.uint8)
+        it, ok, stopped = _flood_frame(
+            x, c.check_ptr, c.edge_var, self._rho, True, _MODE_SP, 1.0, 0.0,
+            float(self.options["damping"]),
+            int(self.options["max_iter"] if max_iter is None else max_iter),
+            bool(self.options["early_stop"] if early_stop is None else early_stop),
+            float(self._tol() if tol is None else tol),
+            _P_MAX32 if dtype == np.float32 else _P_MAX64, c2v, L, Lnew, vbuf, sbuf, obuf)
+        Lf = L.astype(np.float64)
+        tau_local = np.empty(lc.count, dtype=np.float64)
+        _local_beliefs_kernel(Lf, c2v.astype(np.float64), c.check_ptr, c.edge_var, lc.offset,
+                              lc.bit_ptr, lc.bits, tau_local)
+        tau_bits = 0.5 * (1.0 - np.tanh(0.5 * Lf))
+        return tau_bits, tau_local, {"iterations": int(it), "valid": bool(ok),
+                                     "converged": bool(stopped), "posterior_llr": Lf}
+
+    def beliefs(self, llr, *, max_iter: int = 1000, tol: float = 1e-12,
+                return_info: bool = False):
+        """Run reweighted sum-product on one frame to convergence and return its beliefs.
+
+        Parameters
+        ----------
+        llr : ndarray of shape (n,), float
+            Channel LLRs of one frame (positive favours 0).
+        max_iter : int
+            Iteration cap (default 1000).
+        tol : float
+            Stop when no message changes by more than ``tol`` (default 1e-12);
+            the syndrome early stop is off here, since beliefs must be at a fixed
+            point, not merely at a codeword.
+        return_info : bool
+            Also return a dict with ``iterations``, ``converged`` (message change
+            reached ``tol``), ``valid`` and ``posterior_llr``.
+
+        Returns
+        -------
+        tau_bits : ndarray of shape (n,), float64
+            ``P(x_i = 1)``.
+        tau_local : ndarray of shape (L,), float64
+            Check beliefs over the local codewords, in the flat layout of
+            :meth:`ParityCheckCode.local_codewords` (each check's block sums to 1).
+        info : dict, only when ``return_info``
+        """
+        from .base import check_llr
+
+        a, single = check_llr(llr, self.code.n)
+        if not single:
+            raise InputError("beliefs() takes one frame of shape (n,).")
+        if int(max_iter) < 1:
+            raise InputError(f"max_iter must be an integer >= 1; got {max_iter!r}.")
+        if not (tol >= 0):
+            raise InputError(f"tol must be >= 0; got {tol!r}.")
+        tb, tl, info = self._beliefs_one(a[0], max_iter=int(max_iter), tol=float(tol),
+                                         early_stop=False)
+        return (tb, tl, info) if return_info else (tb, tl)
+
+
+class BitFlippingDecoder(Decoder):
+    """Hard-decision bit flipping (Gallager-style majority rule) for the BSC.
+
+    Works on the signs of the channel LLRs only. Each iteration flips every bit
+    for which more than half of its checks are unsatisfied (or, if there is
+    none, the bits with the most unsatisfied checks). ``posterior_llr`` is None.
+    """
+
+    name = "bit-flipping"
+    description = "Hard-decision bit flipping (Gallager-style) for the BSC."
+    params = {
+        "max_iter": Param("int", 50, low=1, doc="maximum number of flipping rounds"),
+        "threads": Param("int", 0, low=0,
+                         doc="threads for the frame-parallel loop (0 = numba's current setting)"),
+    }
+    hard_output = True
+
+    def _decode(self, llr):
+        c = self.code
+        hard = np.ascontiguousarray((llr < 0).astype(np.uint8))
+        F = hard.shape[0]
+        bits = np.empty_like(hard)
+        iters = np.zeros(F, dtype=np.int64)
+        valid = np.zeros(F, dtype=np.bool_)
+        with _Threads(self.options["threads"]):
+            _bitflip_batch(hard, c.check_ptr, c.edge_var, c.var_ptr, c.var_edges, c.edge_check,
+                           int(self.options["max_iter"]), bits, iters, valid)
+        return DecodeResult(bits=bits, posterior_llr=None, iterations=iters, valid=valid, info={})
