@@ -1,0 +1,360 @@
+"""Where chunks run: in-process, a local process pool, or a Dask cluster.
+
+Every executor runs ``func(context, task)`` for many small ``task`` objects
+that share one ``context`` (code matrix, decoder specs, channel kind, run
+seed). The context travels to each worker once; tasks carry only a chunk
+index, an SNR value and a frame count. The coordinator submits tasks,
+waits for any to finish and records results itself, so it stays the only
+writer of the results store whatever the executor.
+
+Executors
+---------
+:class:`InlineExecutor`
+    Runs tasks in the calling process, one at a time (``workers=1``).
+:class:`ProcessExecutor`
+    A :class:`concurrent.futures.ProcessPoolExecutor` using the
+    ``forkserver`` start method (forking a process that already runs numba
+    threads is unsafe), dispatching tasks dynamically.
+:class:`DaskExecutor`
+    A Dask distributed cluster: an existing scheduler (``tcp://host:port``)
+    or a loopback :class:`distributed.LocalCluster` (``local:N``). Needs the
+    ``ldpcmarg[dask]`` extra.
+"""
+
+from __future__ import annotations
+
+import concurrent.futures as cf
+import multiprocessing as mp
+import os
+import signal
+from typing import Any
+
+from .errors import InputError, LdpcmargError, MissingExtraError
+
+__all__ = [
+    "Executor",
+    "InlineExecutor",
+    "ProcessExecutor",
+    "DaskExecutor",
+    "make_executor",
+    "ClusterError",
+]
+
+
+class ClusterError(LdpcmargError):
+    """A Dask cluster could not be reached or failed."""
+
+
+class Executor:
+    """Interface shared by the executors.
+
+    Attributes
+    ----------
+    capacity : int
+        How many tasks the coordinator should keep in flight.
+    workers : int
+        Number of worker slots (processes or Dask threads).
+    """
+
+    capacity = 1
+    workers = 1
+    label = "executor"
+
+    def start(self, func, context) -> None:
+        """Prepare workers to run ``func(context, task)``; ``context`` is shipped once."""
+        raise NotImplementedError
+
+    def submit(self, task) -> Any:
+        """Queue one task; returns a handle."""
+        raise NotImplementedError
+
+    def wait(self, handles: list, timeout: float | None) -> list:
+        """Block until at least one handle is done (or ``timeout`` s); return the done ones."""
+        raise NotImplementedError
+
+    def result(self, handle):
+        """Result of a finished handle (re-raises the task's exception)."""
+        raise NotImplementedError
+
+    def cancel(self, handles: list) -> None:
+        """Drop queued tasks (running ones may finish; their results are ignored)."""
+
+    def close(self, abort: bool = False) -> None:
+        """Release workers; ``abort=True`` stops running tasks without waiting."""
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, exc_type, exc, tb):
+        self.close(abort=exc_type is not None)
+
+
+# ---------------------------------------------------------------- inline
+class InlineExecutor(Executor):
+    """Run tasks in this process when waited for (deterministic, no pickling)."""
+
+    label = "in-process"
+
+    def start(self, func, context):
+        self._func, self._ctx = func, context
+
+    def submit(self, task):
+        return _InlineHandle(task)
+
+    def wait(self, handles, timeout):
+        for h in handles:
+            if h.done:
+                return [h]
+        if not handles or (timeout is not None and timeout <= 0):
+            return []
+        h = handles[0]
+        try:
+            h.value = self._func(self._ctx, h.task)
+        except Exception as exc:  # surfaced by result()
+            h.error = exc
+        h.done = True
+        return [h]
+
+    def result(self, handle):
+        if handle.error is not None:
+            raise handle.error
+        return handle.value
+
+    def cancel(self, handles):
+        for h in handles:
+            h.done = True
+
+
+class _InlineHandle:
+    __slots__ = ("task", "done", "value", "error")
+
+    def __init__(self, task):
+        self.task, self.done, self.value, self.error = task, False, None, None
+
+
+# ---------------------------------------------------------------- process pool
+_WORKER_FUNC = None
+_WORKER_CTX = None
+
+
+def _init_worker(func, context):
+    global _WORKER_FUNC, _WORKER_CTX
+    # The coordinator handles Ctrl-C and stops the pool; workers ignore SIGINT.
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    _WORKER_FUNC, _WORKER_CTX = func, context
+
+
+def _run_in_worker(task):
+    return _WORKER_FUNC(_WORKER_CTX, task)
+
+
+class ProcessExecutor(Executor):
+    """Local process pool with dynamic dispatch.
+
+    Parameters
+    ----------
+    workers : int, optional
+        Worker processes (default: all cores, ``os.cpu_count()``).
+    start_method : str
+        ``"forkserver"`` (default) or ``"spawn"``.
+    """
+
+    label = "process pool"
+
+    def __init__(self, workers: int | None = None, start_method: str = "forkserver"):
+        w = (os.cpu_count() or 1) if workers is None else int(workers)
+        if w < 1:
+            raise InputError(f"The number of workers must be >= 1; got {workers!r}.")
+        self.workers = w
+        self.capacity = 2 * w
+        self._method = start_method
+        self._pool = None
+
+    def start(self, func, context):
+        self._pool = cf.ProcessPoolExecutor(
+            max_workers=self.workers, mp_context=mp.get_context(self._method),
+            initializer=_init_worker, initargs=(func, context))
+
+    def submit(self, task):
+        return self._pool.submit(_run_in_worker, task)
+
+    def wait(self, handles, timeout):
+        done, _ = cf.wait(handles, timeout=timeout, return_when=cf.FIRST_COMPLETED)
+        return list(done)
+
+    def result(self, handle):
+        try:
+            return handle.result()
+        except cf.process.BrokenProcessPool as exc:
+            raise LdpcmargError(
+                "A worker process died unexpectedly (out of memory or killed?); completed "
+                "chunks are kept in the store, run the same command again to continue."
+            ) from exc
+
+    def cancel(self, handles):
+        for h in handles:
+            h.cancel()
+
+    def close(self, abort=False):
+        pool, self._pool = self._pool, None
+        if pool is None:
+            return
+        if abort:
+            procs = list(getattr(pool, "_processes", {}).values())
+            pool.shutdown(wait=False, cancel_futures=True)
+            for p in procs:
+                if p.is_alive():
+                    p.terminate()
+            for p in procs:
+                p.join(timeout=5)
+        else:
+            pool.shutdown(wait=True, cancel_futures=True)
+
+
+# ---------------------------------------------------------------- dask
+def _dask_call(func, context, task):
+    return func(context, task)
+
+
+def _import_distributed():
+    try:
+        import distributed
+    except ImportError as exc:
+        raise MissingExtraError(
+            "Running on a cluster needs Dask distributed; install the extra: "
+            "pip install 'ldpcmarg[dask]'."
+        ) from exc
+    return distributed
+
+
+class DaskExecutor(Executor):
+    """Run chunks on a Dask distributed cluster.
+
+    Parameters
+    ----------
+    address : str
+        ``tcp://HOST:PORT`` of a running scheduler, or ``local:N`` to start a
+        :class:`distributed.LocalCluster` with N single-threaded worker
+        processes bound to 127.0.0.1.
+    connect_timeout : float
+        Seconds to wait for the scheduler before giving up with
+        :class:`ClusterError`.
+    retries : int
+        Times a failed chunk is retried (a chunk lost with a dead worker is
+        rescheduled by Dask itself; its result is the same, seeded by chunk).
+
+    Notes
+    -----
+    The context (code matrix and specs) is scattered to every worker once
+    (``broadcast=True``); workers build the decoders once per context and
+    reuse them (numba kernels load from the on-disk cache).
+    """
+
+    label = "dask"
+
+    def __init__(self, address: str, connect_timeout: float = 10.0, retries: int = 3):
+        distributed = _import_distributed()
+        self._distributed = distributed
+        self.address = address
+        self._retries = int(retries)
+        self._cluster = None
+        self._ctx_future = None
+        self._func = None
+        if address.startswith("local:"):
+            try:
+                n = int(address.split(":", 1)[1])
+            except ValueError:
+                n = 0
+            if n < 1:
+                raise InputError(f"--cluster local:N needs a worker count N >= 1; got {address!r}.")
+            import logging
+
+            self._cluster = distributed.LocalCluster(
+                n_workers=n, threads_per_worker=1, processes=True, host="127.0.0.1",
+                dashboard_address=None, silence_logs=logging.ERROR)
+            target = self._cluster
+        elif address.startswith(("tcp://", "tls://")):
+            target = address
+        else:
+            raise InputError(
+                f"Unknown cluster address {address!r}; use tcp://HOST:PORT or local:N.")
+        try:
+            self._client = distributed.Client(target, timeout=connect_timeout,
+                                              set_as_default=False)
+        except (OSError, TimeoutError) as exc:
+            if self._cluster is not None:
+                self._cluster.close()
+            raise ClusterError(
+                f"Cannot reach the Dask scheduler at {address} within {connect_timeout:g} s "
+                f"({type(exc).__name__}); is it running and reachable?"
+            ) from exc
+        nthreads = sum(self._client.nthreads().values()) or 1
+        self.workers = nthreads
+        self.capacity = 2 * nthreads
+
+    @property
+    def client(self):
+        return self._client
+
+    def start(self, func, context):
+        self._func = func
+        self._ctx_future = self._client.scatter(context, broadcast=True, hash=False)
+
+    def submit(self, task):
+        return self._client.submit(_dask_call, self._func, self._ctx_future, task,
+                                   pure=False, retries=self._retries)
+
+    def wait(self, handles, timeout):
+        done = [h for h in handles if h.done()]
+        if done or not handles:
+            return done
+        try:
+            res = self._distributed.wait(handles, timeout=timeout, return_when="FIRST_COMPLETED")
+        except TimeoutError:
+            return []
+        except Exception as exc:  # dask raises its own TimeoutError subclass on some versions
+            if "Timeout" in type(exc).__name__:
+                return []
+            raise
+        return list(res.done)
+
+    def result(self, handle):
+        return handle.result()
+
+    def cancel(self, handles):
+        if handles:
+            self._client.cancel(handles)
+
+    def close(self, abort=False):
+        client, self._client = getattr(self, "_client", None), None
+        if client is not None:
+            try:
+                client.close(timeout=5)
+            except Exception:  # pragma: no cover - best effort on shutdown
+                pass
+        if self._cluster is not None:
+            try:
+                self._cluster.close(timeout=10)
+            except Exception:  # pragma: no cover
+                pass
+            self._cluster = None
+
+
+def make_executor(workers: int | None = None, cluster: str | None = None) -> Executor:
+    """Pick an executor: Dask when ``cluster`` is given, else a process pool or inline.
+
+    Parameters
+    ----------
+    workers : int, optional
+        Local worker processes; ``1`` runs in-process; default all cores.
+    cluster : str, optional
+        ``tcp://HOST:PORT`` or ``local:N`` (see :class:`DaskExecutor`).
+    """
+    if cluster:
+        return DaskExecutor(cluster)
+    w = (os.cpu_count() or 1) if workers is None else int(workers)
+    if w < 1:
+        raise InputError(f"The number of workers must be >= 1; got {workers!r}.")
+    if w == 1:
+        return InlineExecutor()
+    return ProcessExecutor(w)
