@@ -31,7 +31,6 @@ from typing import Any
 import numpy as np
 from scipy.special import expit
 
-from . import gf2
 from .channels import make_channel
 from .decoders.base import Decoder, make_decoder
 from .errors import InputError, LdpcmargError
@@ -117,30 +116,16 @@ def posterior_errors(ref_p1, llr=None, *, p1=None, ref_llr=None) -> dict[str, np
 
 
 # --------------------------------------------------------------- codewords
-def _nullspace_basis(code) -> np.ndarray:
-    """Basis of the code (rows, shape (k, n), uint8) from the reduced H."""
-    n = code.n
-    packed, pivots = gf2.row_reduce(code.H.toarray())
-    R = gf2.unpack_rows(packed, n) if packed.shape[0] else np.zeros((0, n), np.uint8)
-    free = np.setdiff1d(np.arange(n), pivots)
-    G = np.zeros((free.size, n), dtype=np.uint8)
-    for row, j in enumerate(free):
-        G[row, j] = 1
-        G[row, pivots] = R[:, j]
-    return G
-
-
-def random_codewords(code, frames: int, rng: np.random.Generator,
-                     basis: np.ndarray | None = None) -> np.ndarray:
+def random_codewords(code, frames: int, rng: np.random.Generator) -> np.ndarray:
     """Uniformly random codewords of ``code``, shape (frames, n), uint8.
 
-    ``basis`` (k, n) may be passed to avoid recomputing the null space of H.
+    Uniform messages of length k through the code's systematic encoder.
     """
-    G = _nullspace_basis(code) if basis is None else basis
-    if G.shape[0] == 0:
+    k = code.k
+    if k == 0:
         return np.zeros((frames, code.n), dtype=np.uint8)
-    u = rng.integers(0, 2, size=(frames, G.shape[0]), dtype=np.uint8)
-    return ((u.astype(np.int64) @ G.astype(np.int64)) % 2).astype(np.uint8)
+    msgs = rng.integers(0, 2, size=(frames, k), dtype=np.uint8)
+    return np.asarray(code.encode(msgs), dtype=np.uint8)
 
 
 # ------------------------------------------------------------------ results
@@ -383,7 +368,7 @@ def compare_decoders(code, decoders, *, snr, snr_unit: str = "ebn0", frames: int
 
     Notes
     -----
-    Codewords are uniformly random (through a null-space basis of H), so
+    Codewords are uniformly random (through the systematic encoder), so
     calibration and mutual information are measured on both bit values and
     asymmetric decoders are treated fairly. Times are wall-clock on a batch
     call, divided by the number of frames.
@@ -415,7 +400,6 @@ def compare_decoders(code, decoders, *, snr, snr_unit: str = "ebn0", frames: int
         ref_kind = "decoder"
     # channels first: bad SNR values fail before any decoding
     channels = [_channel_for(snr_unit, s, code.rate) for s in snr_points]
-    basis = _nullspace_basis(code)
     if warmup:
         w = np.zeros((1, code.n))
         w[0, :] = 2.0
@@ -427,7 +411,7 @@ def compare_decoders(code, decoders, *, snr, snr_unit: str = "ebn0", frames: int
     ref_times: list[float | None] = []
     for j, (s, ch) in enumerate(zip(snr_points, channels, strict=True)):
         rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(j,)))
-        cw = random_codewords(code, int(frames), rng, basis)
+        cw = random_codewords(code, int(frames), rng)
         llr = ch.sample_llr(cw, rng)
         ref_p1 = ref_llr = None
         t_ref = None
