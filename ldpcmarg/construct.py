@@ -334,10 +334,11 @@ def _peg_kernel(order, var_deg, check_cap, uniforms, var_adj, var_cnt, check_adj
 
 
 def peg(n: int, m: int, var_degrees, seed=0, check_degrees=None,
-        name: str | None = None) -> ParityCheckCode:
+        order: str = "ascending", name: str | None = None) -> ParityCheckCode:
     """Progressive edge-growth Tanner graph (Hu, Eleftheriou & Arnold, IEEE Trans. IT 2005).
 
-    Bits are processed in order of non-decreasing degree; each new edge of a
+    Bits are processed in order of non-decreasing degree (as in the paper;
+    ``order="descending"`` reverses it); each new edge of a
     bit goes to a check as far from the bit as possible in the current graph
     (so short cycles are avoided), breaking ties by lowest current check
     degree (check-degree balancing) and then at random.
@@ -349,10 +350,13 @@ def peg(n: int, m: int, var_degrees, seed=0, check_degrees=None,
     var_degrees : int or array_like of shape (n,), int
         Degree of every bit (an int means all equal).
     seed : int
-    check_degrees : array_like of shape (m,), int, optional
+    check_degrees : array_like of shape (m,), int, or "free", optional
         Exact check degrees to reach (summing to the bit degrees). Default:
         as equal as possible (``E // m`` or ``E // m + 1``), so a (3,6)
-        sequence gives exactly degree-6 checks.
+        sequence gives exactly degree-6 checks. ``"free"``: no cap, only the
+        lowest-degree tie-break (the original algorithm).
+    order : {"ascending", "descending"}
+        Processing order of the bits by degree.
     name : str, optional
 
     Returns
@@ -369,7 +373,11 @@ def peg(n: int, m: int, var_degrees, seed=0, check_degrees=None,
     if vd.min() < 1 or vd.max() > m:
         raise InputError(f"Bit degrees must lie in 1..m = {m}; got {vd.min()}..{vd.max()}.")
     E = int(vd.sum())
-    if check_degrees is None:
+    if isinstance(check_degrees, str):
+        if check_degrees != "free":
+            raise InputError(f"check_degrees must be a sequence, None or 'free'; got {check_degrees!r}.")
+        cd = np.full(m, n, dtype=np.int64)
+    elif check_degrees is None:
         cd = np.full(m, E // m, dtype=np.int64)
         cd[: E % m] += 1
     else:
@@ -379,12 +387,15 @@ def peg(n: int, m: int, var_degrees, seed=0, check_degrees=None,
                 f"check_degrees must have length m = {m}, be >= 0 and sum to {E} (the bit degrees).")
     rng = _rng(seed)
     uniforms = rng.random(E)
-    order = np.argsort(vd, kind="stable").astype(np.int64)
+    if order not in ("ascending", "descending"):
+        raise InputError(f"order must be 'ascending' or 'descending'; got {order!r}.")
+    key = vd if order == "ascending" else -vd
+    order_idx = np.argsort(key, kind="stable").astype(np.int64)
     var_adj = np.full((n, int(vd.max())), -1, dtype=np.int64)
-    check_adj = np.full((m, max(int(cd.max()), 1)), -1, dtype=np.int64)
+    check_adj = np.full((m, max(min(int(cd.max()), n), 1)), -1, dtype=np.int64)
     var_cnt = np.zeros(n, dtype=np.int64)
     check_cnt = np.zeros(m, dtype=np.int64)
-    status = _peg_kernel(order, vd, cd, uniforms, var_adj, var_cnt, check_adj, check_cnt)
+    status = _peg_kernel(order_idx, vd, cd, uniforms, var_adj, var_cnt, check_adj, check_cnt)
     if status < 0:
         raise InputError(
             f"PEG could not place every edge of bit {-status - 1}: no check with spare "
@@ -394,7 +405,8 @@ def peg(n: int, m: int, var_degrees, seed=0, check_degrees=None,
     degtxt = f"{int(vd[0])}" if np.all(vd == vd[0]) else "irregular"
     return _from_edges(cols, rows, (m, n), name or f"peg-{n}-{m}-{degtxt}",
                        f"peg(n={n}, m={m}, var_degrees={degtxt if degtxt != 'irregular' else 'sequence'}, "
-                       f"seed={seed})")
+                       f"seed={seed}, order={order}"
+                       + (", check_degrees=free" if isinstance(check_degrees, str) else "") + ")")
 
 
 # ------------------------------------------------------------ algebraic codes
