@@ -304,6 +304,12 @@ def _info_summary(info: dict[str, Any], F: int) -> dict[str, float]:
     out = {}
     for k, v in (info or {}).items():
         a = np.asarray(v)
+        if a.ndim == 1 and a.shape[0] == F and a.dtype.kind in "UO":
+            words, counts = np.unique(a.astype(str), return_counts=True)
+            if words.size <= 6:
+                for w, c in zip(words.tolist(), counts.tolist(), strict=True):
+                    out[f"{k}={w}_fraction"] = c / F
+            continue
         if a.ndim != 1 or a.shape[0] != F or a.dtype.kind not in "biuf":
             continue
         af = a.astype(np.float64)

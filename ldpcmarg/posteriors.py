@@ -89,8 +89,9 @@ class PosteriorResult:
         Hard decision satisfies every parity check.
     info : dict of str to ndarray
         Per-frame certificates and extras from the decoder (``duality_gap``,
-        ``log_partition_bound``, ``ml_certificate``, ``certified_gap`` …),
-        each with first dimension F.
+        ``log_partition_bound``, ``ml_certificate``, ``certified_gap``,
+        ``status`` …), each an array with first dimension F (numeric, bool or
+        str; non-array extras such as traces are not kept).
     meta : dict
         JSON-ready description: code summary, decoder spec, channel, input kind.
     """
@@ -149,11 +150,9 @@ def _read_text(path: Path) -> np.ndarray:
     def split(ln):
         return [t.strip() for t in (ln.split(delim) if delim else ln.split())]
 
-    # One header row of non-numeric labels is allowed.
+    # One header row of labels (no token a number) is allowed.
     first = split(data_lines[0][1])
-    try:
-        [float(t) for t in first]
-    except ValueError:
+    if not any(_is_float(t) for t in first):
         data_lines = data_lines[1:]
         if not data_lines:
             raise InputError(f"{path} holds a header but no data rows.") from None
@@ -378,7 +377,7 @@ def outputs_to_llr(outputs, channel: Channel, n: int) -> np.ndarray:
         if not np.all(binary):
             f, i = _first_where(~binary)
             raise InputError(
-                f"BSC outputs must be 0 or 1; frame {f}, bit {i} is {yf[f, i]!r}"
+                f"BSC outputs must be 0 or 1; frame {f}, bit {i} is {float(yf[f, i])!r}"
                 + (" (real-valued outputs need an AWGN channel: --ebn0, --esn0 or --sigma)."
                    if not float(yf[f, i]).is_integer() else ".")
             )
@@ -388,7 +387,7 @@ def outputs_to_llr(outputs, channel: Channel, n: int) -> np.ndarray:
             f, i = _first_where(~ok)
             raise InputError(
                 f"BEC outputs must be 0, 1 or {ERASED} (erased); frame {f}, bit {i} "
-                f"is {yf[f, i]!r}."
+                f"is {float(yf[f, i])!r}."
             )
         yf = yf.astype(np.uint8)
     return np.ascontiguousarray(channel.llr(yf), dtype=np.float64)
@@ -454,10 +453,11 @@ def compute_posteriors(code, decoder="sum-product", *, llr=None, outputs=None,
                 "outputs (drop the channel, or pass the outputs instead of LLRs)."
             )
         a = _frames_2d(np.asarray(llr), code.n, "LLRs")
-        if a.dtype.kind == "b" or (a.size > 1 and np.all((a == 0) | (a == 1))):
+        if a.dtype.kind == "b" or (np.all((a == 0) | (a == 1)) and np.any(a == 0)
+                                   and np.any(a == 1)):
             raise InputError(
-                "The LLRs are all 0 or 1, which looks like hard bits; for BSC outputs give the "
-                "channel (--bsc P)."
+                "The LLRs are all 0 or 1 (both present), which looks like hard bits; for BSC "
+                "outputs give the channel (--bsc P)."
             )
         ch_llr, _ = check_llr(a, code.n)
         input_kind = "llr"
@@ -473,8 +473,13 @@ def compute_posteriors(code, decoder="sum-product", *, llr=None, outputs=None,
     info = {}
     for k, v in (res.info or {}).items():
         a = np.asarray(v)
-        if a.ndim >= 1 and a.shape[0] == F and a.dtype.kind in "biuf":
+        if a.ndim >= 1 and a.shape[0] == F and a.dtype.kind in "biufU":
             info[str(k)] = a
+        elif a.ndim >= 1 and a.shape[0] == F and a.dtype.kind == "O":
+            try:  # e.g. per-frame status words held as objects
+                info[str(k)] = a.astype(str)
+            except (TypeError, ValueError):
+                pass
     meta = {
         "format": _FORMAT_TAG,
         "version": _FORMAT_VERSION,
@@ -535,6 +540,8 @@ def _encode_array(a: np.ndarray) -> dict:
                 for v in a.astype(np.float64).ravel().tolist()]
     elif a.dtype.kind == "b":
         flat = [bool(v) for v in a.ravel().tolist()]
+    elif a.dtype.kind == "U":
+        flat = [str(v) for v in a.ravel().tolist()]
     else:
         flat = [int(v) for v in a.ravel().tolist()]
     return {"dtype": a.dtype.str, "shape": list(a.shape), "data": flat}
