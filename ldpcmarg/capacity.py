@@ -112,7 +112,7 @@ def biawgn_capacity(sigma: float | None = None, *, esn0_db: float | None = None)
 
 
 def gaussian_capacity(sigma: float | None = None, *, esn0_db: float | None = None) -> float:
-    """Capacity with unconstrained (Gaussian) input, ``0.5 log2(1 + 2 Es/N0)`` bits per real dimension.
+    """Capacity with Gaussian input, ``0.5 log2(1 + 2 Es/N0)`` bits per real dimension.
 
     Same SNR parameterisation as :func:`biawgn_capacity` (power 1, noise variance ``sigma**2``).
     """

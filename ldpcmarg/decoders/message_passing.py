@@ -41,7 +41,7 @@ import numpy as np
 from .._params import Param
 from .._settings import LLR_MAX, NUMBA_OPTS
 from ..errors import InputError
-from .base import DecodeResult, Decoder
+from .base import Decoder, DecodeResult
 
 __all__ = [
     "SumProductDecoder",
@@ -293,7 +293,7 @@ def _layered_frame(llr, check_ptr, edge_var, mode, alpha, beta, damping, max_ite
 @nb.njit(parallel=True, **NUMBA_OPTS)
 def _flood_batch(llr, check_ptr, edge_var, rho, weighted, mode, alpha, beta, damping,
                  max_iter, early_stop, tol, pmax, dmax, post, iters, valid, stopped):
-    """Flooding over a batch: ``llr`` (F, n) -> ``post`` (F, n), ``iters``/``valid``/``stopped`` (F,)."""
+    """Flooding over a batch: llr (F, n) -> post (F, n); iters, valid, stopped (F,)."""
     F, n = llr.shape
     E = edge_var.shape[0]
     for f in nb.prange(F):
@@ -425,7 +425,7 @@ def _common_params(damping_default: float = 0.0) -> dict[str, Param]:
         "damping": Param("float", damping_default, low=0.0, high=1.0, high_open=True,
                          doc="message damping d: new = (1-d) * update + d * old"),
         "precision": Param("choice", "float64", choices=("float64", "float32"),
-                           doc="floating type of the messages (posteriors are returned as float64)"),
+                           doc="floating type of messages (posteriors are returned as float64)"),
         "threads": Param("int", 0, low=0,
                          doc="threads for the frame-parallel loop (0 = numba's current setting)"),
     }
@@ -545,7 +545,7 @@ class MinSumDecoder(_MessagePassing):
 
 
 class OffsetMinSumDecoder(_MessagePassing):
-    """Offset min-sum, flooding: ``c2v = prod sign(v_j) * max(min |v_j| - beta, 0)`` over ``j != i``.
+    """Offset min-sum, flooding: ``c2v = prod sign(v_j) * max(min |v_j| - beta, 0)``, ``j != i``.
 
     ``beta`` is in LLR units (channel LLRs ``2 y / sigma**2`` for BPSK/AWGN).
     """
