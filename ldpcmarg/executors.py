@@ -76,8 +76,9 @@ class Executor:
         """Result of a finished handle (re-raises the task's exception)."""
         raise NotImplementedError
 
-    def cancel(self, handles: list) -> None:
-        """Drop queued tasks (running ones may finish; their results are ignored)."""
+    def cancel(self, handles: list) -> list:
+        """Drop queued tasks; return the handles that could not be cancelled (running)."""
+        return []
 
     def close(self, abort: bool = False) -> None:
         """Release workers; ``abort=True`` stops running tasks without waiting."""
@@ -123,6 +124,7 @@ class InlineExecutor(Executor):
     def cancel(self, handles):
         for h in handles:
             h.done = True
+        return []
 
 
 class _InlineHandle:
@@ -192,8 +194,7 @@ class ProcessExecutor(Executor):
             ) from exc
 
     def cancel(self, handles):
-        for h in handles:
-            h.cancel()
+        return [h for h in handles if not h.cancel()]
 
     def close(self, abort=False):
         pool, self._pool = self._pool, None
@@ -324,6 +325,7 @@ class DaskExecutor(Executor):
     def cancel(self, handles):
         if handles:
             self._client.cancel(handles)
+        return []
 
     def close(self, abort=False):
         client, self._client = getattr(self, "_client", None), None

@@ -302,8 +302,8 @@ def run_chunk(ctx: SweepContext, task: ChunkTask) -> ChunkResult:
     ChunkResult
         Raw counts; the seed makes them a pure function of ``(ctx, task)``.
     """
-    t_start = time.perf_counter()
     code, decs, info, enc = _worker_state(ctx)
+    t_start = time.perf_counter()
     n, F = code.n, int(task.frames)
     ss = np.random.SeedSequence(entropy=int(ctx.seed), spawn_key=(int(task.point_key),
                                                                   int(task.chunk_index)))
@@ -503,15 +503,17 @@ class SweepResult:
     def table(self) -> str:
         """Plain-text results table."""
         label = {"ebn0_db": "Eb/N0 dB", "esn0_db": "Es/N0 dB", "p": "p", "epsilon": "epsilon"}
-        head = (f"{'decoder':28s} {label[self.channel['snr_kind']]:>9s} {'frames':>10s} "
-                f"{'fr.err':>7s} {'FER':>9s} {'BER':>9s} {'BER 95%-CI':>21s} {'iter':>6s} "
+        w = max([7] + [len(p.decoder) for p in self.points])
+        conf = f"BER {100 * self.settings.get('confidence', 0.95):g}%-CI"
+        head = (f"{'decoder':{w}s} {label[self.channel['snr_kind']]:>9s} {'frames':>10s} "
+                f"{'fr.err':>7s} {'FER':>9s} {'BER':>9s} {conf:>21s} {'iter':>6s} "
                 f"{'ms/fr':>7s} stop")
         lines = [head, "-" * len(head)]
         for p in self.points:
             lo, hi = p.ber_ci
             ms = 1e3 * p.seconds / p.frames if p.frames else float("nan")
             lines.append(
-                f"{p.decoder[:28]:28s} {p.snr:9.4g} {p.frames:10d} {p.frame_errors:7d} "
+                f"{p.decoder:{w}s} {p.snr:9.4g} {p.frames:10d} {p.frame_errors:7d} "
                 f"{p.fer:9.3e} {p.ber:9.3e} [{lo:9.2e},{hi:9.2e}] {p.avg_iterations:6.2f} "
                 f"{ms:7.3f} {p.stop}")
         if self.skipped:
@@ -717,8 +719,8 @@ def simulate(code, decoders, snr, *, snr_kind: str = "ebn0_db", seed: int = 1,
         fe = ds.totals[_F["frame_errors"]]
         if not speculate:
             return ds.next + 1
-        if fe == 0:
-            return n_chunks
+        if fe == 0:  # nothing to extrapolate from: grow the look-ahead geometrically
+            return min(n_chunks, 2 * ds.next + 1)
         need = stop.frame_errors - fe
         per_chunk = fe / max(ds.next, 1)
         return min(n_chunks, ds.next + max(1, math.ceil(1.25 * need / per_chunk)))
@@ -825,8 +827,13 @@ def simulate(code, decoders, snr, *, snr_kind: str = "ebn0_db", seed: int = 1,
             wait_for = None if stop.time_budget is None else 0.25
             for h in executor.wait(list(inflight), wait_for):
                 record(h)
-        # drop speculative chunks still running
-        executor.cancel(list(inflight))
+        # drop queued speculative chunks; keep (store) those already running
+        running = set(executor.cancel(list(inflight)))
+        for h in [h for h in inflight if h not in running]:
+            inflight.pop(h)
+        while inflight:
+            for h in executor.wait(list(inflight), None):
+                record(h)
     except KeyboardInterrupt:
         interrupted = True
         raise
@@ -842,7 +849,7 @@ def simulate(code, decoders, snr, *, snr_kind: str = "ebn0_db", seed: int = 1,
                             inflight.pop(h, None)
             except BaseException:  # pragma: no cover
                 pass
-        executor.close(abort=True)
+        executor.close(abort=interrupted or bool(inflight))
         timing["wall_seconds"] = time.perf_counter() - t_run
         if interrupted and own_store:
             store.close()

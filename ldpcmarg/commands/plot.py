@@ -1,0 +1,56 @@
+"""``ldpcmarg plot``: BER/FER figure from results stores, JSON or CSV files."""
+
+from __future__ import annotations
+
+import click
+
+from ..errors import InputError
+
+
+def _thresholds(values) -> dict:
+    out = {}
+    for item in values:
+        label, eq, value = item.rpartition("=")
+        if not eq or not label.strip():
+            raise InputError(f"--line takes LABEL=VALUE (e.g. 'BP threshold=1.11'); got {item!r}.")
+        try:
+            out[label.strip()] = float(value)
+        except ValueError as exc:
+            raise InputError(f"--line value in {item!r} is not a number.") from exc
+    return out
+
+
+@click.command("plot")
+@click.argument("sources", nargs=-1, required=True, type=click.Path(dir_okay=False))
+@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False),
+              help="Figure file: .png, .svg or .pdf.")
+@click.option("--run", type=int, default=None,
+              help="Only this run of a store (see 'ldpcmarg runs STORE').")
+@click.option("--metric", type=click.Choice(["both", "ber", "fer"]), default="both",
+              show_default=True, help="Panels to draw.")
+@click.option("--line", "lines", multiple=True, metavar="LABEL=X",
+              help="Extra vertical line, e.g. a density-evolution threshold in dB; repeatable.")
+@click.option("--no-uncoded", is_flag=True, help="Leave out the uncoded reference curve.")
+@click.option("--no-shannon", is_flag=True, help="Leave out the Shannon-limit line(s).")
+@click.option("--title", default=None, help="Figure title.")
+def command(sources, output, run, metric, lines, no_uncoded, no_shannon, title):
+    """Draw BER and FER against Eb/N0 from SOURCES (stores, --json or --csv files).
+
+    Several sources (codes, decoders) share one figure. Error bars are the
+    confidence intervals; the uncoded BPSK curve 1/2 erfc(sqrt(Eb/N0)) and
+    the Shannon limit of each code rate are drawn for reference.
+    """
+    from ..plots import check_figure_path, curves_from_file, curves_from_store, plot_curves
+
+    check_figure_path(output)
+    extra = _thresholds(lines)
+    curves = []
+    for src in sources:
+        if run is not None:
+            curves += curves_from_store(src, run=run)
+        else:
+            curves += curves_from_file(src)
+    metrics = ("ber", "fer") if metric == "both" else (metric,)
+    plot_curves(curves, output, metrics=metrics, thresholds=extra, uncoded=not no_uncoded,
+                shannon=not no_shannon, title=title)
+    click.echo(f"wrote {output} ({len(curves)} curves)")

@@ -1,0 +1,234 @@
+"""``ldpcmarg simulate``: Monte Carlo BER/FER sweep over SNR points."""
+
+from __future__ import annotations
+
+import math
+import os
+import sys
+import time
+
+import click
+
+from ..errors import InputError
+
+GRID_HELP = ("a,b,c or start:step:stop (stop included when it lies on the grid; "
+             "forms can be mixed: 0:0.5:2,2.25)")
+
+
+def _load_code(name_or_path):
+    try:
+        from ..io import load_code
+    except ModuleNotFoundError as exc:  # pragma: no cover - only while io.py is missing
+        raise InputError("Loading codes needs ldpcmarg.io, missing from this build.") from exc
+    return load_code(name_or_path)
+
+
+class _Progress:
+    """One status line per point on stderr: frames, errors, live FER/BER and an ETA."""
+
+    def __init__(self, enabled: bool):
+        self.enabled = enabled
+        self.tty = sys.stderr.isatty()
+        self.last = 0.0
+        self.finished: set = set()
+
+    def __call__(self, info: dict):
+        if not self.enabled:
+            return
+        if info["done"]:
+            if info["index"] in self.finished:
+                return
+            self.finished.add(info["index"])
+        now = time.monotonic()
+        if self.tty and not info["done"] and now - self.last < 0.2:
+            return
+        self.last = now
+        if not self.tty and not info["done"]:
+            return  # in logs: one line per finished point
+        label = {"ebn0_db": "Eb/N0 {:g} dB", "esn0_db": "Es/N0 {:g} dB", "p": "p {:g}",
+                 "epsilon": "eps {:g}"}[info["snr_kind"]].format(info["snr"])
+        parts = []
+        for d in info["decoders"]:
+            name = d["decoder"].split(":")[0]
+            fer = "-" if d["frames"] == 0 else f"{d['fer']:.2e}"
+            ber = "-" if d["frames"] == 0 else f"{d['ber']:.2e}"
+            parts.append(f"{name} {d['frames']} fr {d['frame_errors']} err FER {fer} BER {ber}")
+        eta = info["eta"]
+        eta_txt = "done" if info["done"] else ("ETA ?" if eta is None else f"ETA {_dur(eta)}")
+        bar_w = 20
+        filled = int(round(bar_w * min(max(info["fraction"], 0.0), 1.0)))
+        bar = "#" * filled + "." * (bar_w - filled)
+        line = f"{label:>16s} [{bar}] " + " | ".join(parts) + f" | {eta_txt}"
+        if self.tty:
+            width = max(40, _term_width() - 1)
+            click.echo("\r" + line[:width].ljust(width), err=True, nl=info["done"])
+        else:
+            click.echo(line, err=True)
+
+
+def _dur(s: float) -> str:
+    if not math.isfinite(s):
+        return "?"
+    s = int(round(s))
+    if s < 60:
+        return f"{s}s"
+    if s < 3600:
+        return f"{s // 60}m{s % 60:02d}s"
+    return f"{s // 3600}h{(s % 3600) // 60:02d}m"
+
+
+def _term_width() -> int:
+    try:
+        return os.get_terminal_size(sys.stderr.fileno()).columns
+    except OSError:
+        return 120
+
+
+def _positive(name):
+    def cb(ctx, param, value):
+        if value is not None and value < 1:
+            raise click.BadParameter(f"must be >= 1; got {value}.", param_hint=name)
+        return value
+    return cb
+
+
+@click.command("simulate", context_settings={"max_content_width": 100})
+@click.argument("code")
+@click.option("-d", "--decoder", "decoders", multiple=True, required=True, metavar="SPEC",
+              help="Decoder, repeatable. SPEC is NAME or NAME:key=value,key=value, e.g. "
+                   "sum-product:max_iter=50 or min-sum:alpha=0.8,max_iter=30. "
+                   "'ldpcmarg decoders NAME' lists the options.")
+@click.option("--channel", type=click.Choice(["awgn", "bsc", "bec"]), default="awgn",
+              show_default=True, help="Channel: BPSK over AWGN, BSC or BEC.")
+@click.option("--ebn0", metavar="GRID", help=f"AWGN Eb/N0 points in dB (uses rate k/n); {GRID_HELP}.")
+@click.option("--esn0", metavar="GRID", help="AWGN Es/N0 points in dB (symbol SNR, Es = 1), "
+                                              "instead of --ebn0.")
+@click.option("--param", "param_grid", metavar="GRID",
+              help="BSC crossover probability p or BEC erasure probability epsilon points, "
+                   "same GRID syntax (for --channel bsc/bec).")
+@click.option("--frame-errors", type=int, default=100, show_default=True,
+              callback=_positive("--frame-errors"),
+              help="Stop a point (per decoder) after this many frame errors.")
+@click.option("--max-frames", type=int, default=1_000_000, show_default=True,
+              callback=_positive("--max-frames"), help="Frame cap per point and decoder.")
+@click.option("--time-budget", type=float, default=None, metavar="SECONDS",
+              help="Wall-clock budget per point; the point keeps what finished in time "
+                   "(counts then depend on machine speed).")
+@click.option("--fer-floor", type=float, default=None, metavar="FER",
+              help="Skip the remaining points once every decoder's FER is below this.")
+@click.option("--seed", type=int, default=1, show_default=True,
+              help="Run seed; chunk seeds derive from (seed, SNR value, chunk index).")
+@click.option("--workers", type=int, default=None, callback=_positive("--workers"),
+              help="Local worker processes [default: all cores]; 1 runs in this process.")
+@click.option("--cluster", metavar="ADDRESS", default=None,
+              help="Run on Dask: tcp://HOST:PORT of a running scheduler, or local:N for a "
+                   "loopback cluster of N processes (needs ldpcmarg[dask]).")
+@click.option("--chunk-frames", type=int, default=None, callback=_positive("--chunk-frames"),
+              help="Frames per work chunk [default: about 2^19 bits]; part of the run identity.")
+@click.option("--random-codewords", is_flag=True,
+              help="Send random codewords through the encoder instead of the all-zero word.")
+@click.option("--confidence", type=float, default=0.95, show_default=True,
+              help="Level of the reported confidence intervals.")
+@click.option("--store", "store_path", type=click.Path(dir_okay=False), default=None,
+              help="SQLite results store; re-running the command continues it.")
+@click.option("--json", "json_path", type=click.Path(dir_okay=False), default=None,
+              help="Write the curve as JSON.")
+@click.option("--csv", "csv_path", type=click.Path(dir_okay=False), default=None,
+              help="Write the curve as CSV.")
+@click.option("--plot", "plot_path", type=click.Path(dir_okay=False), default=None,
+              help="Write a BER/FER figure (.png, .svg or .pdf).")
+@click.option("-q", "--quiet", is_flag=True, help="No progress lines.")
+def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_frames,
+            time_budget, fer_floor, seed, workers, cluster, chunk_frames, random_codewords,
+            confidence, store_path, json_path, csv_path, plot_path, quiet):
+    """Simulate BER and FER of CODE (a shipped name or a matrix file) over an SNR grid.
+
+    \b
+    Example:
+      ldpcmarg simulate peg-504-3-6 -d sum-product -d min-sum:alpha=0.8 \\
+          --ebn0 1:0.5:3 --frame-errors 50 --store peg.sqlite --json peg.json
+
+    Every decoder decodes the same frames. Counts depend only on the seed,
+    the chunk size and the stopping rule, not on the number of workers;
+    re-running the same command with --store continues where it stopped, and
+    a higher --frame-errors or new SNR points reuse the stored chunks.
+    FER intervals are Clopper-Pearson; BER intervals treat the frame as the
+    sampling unit (bit errors come in bursts).
+    """
+    from ..simulate import StopRule, parse_grid, simulate
+    from ..store import Store
+
+    # ---- validate everything before touching the store
+    if seed < 0:
+        raise InputError(f"--seed must be >= 0; got {seed}.")
+    if not 0 < confidence < 1:
+        raise InputError(f"--confidence must be in (0, 1); got {confidence}.")
+    if channel == "awgn":
+        if param_grid is not None:
+            raise InputError("--param is for --channel bsc/bec; use --ebn0 or --esn0 for AWGN.")
+        if (ebn0 is None) == (esn0 is None):
+            raise InputError("Give exactly one of --ebn0 GRID or --esn0 GRID.")
+        snr_kind = "ebn0_db" if ebn0 is not None else "esn0_db"
+        grid = parse_grid(ebn0 if ebn0 is not None else esn0,
+                          "--ebn0" if ebn0 is not None else "--esn0")
+    else:
+        if ebn0 is not None or esn0 is not None:
+            raise InputError(f"--ebn0/--esn0 are for AWGN; give --param GRID for --channel {channel}.")
+        if param_grid is None:
+            what = "crossover probability p" if channel == "bsc" else "erasure probability epsilon"
+            raise InputError(f"--channel {channel} needs --param GRID (the {what}).")
+        snr_kind = "p" if channel == "bsc" else "epsilon"
+        grid = parse_grid(param_grid, "--param")
+    stop = StopRule(frame_errors=frame_errors, max_frames=max_frames, time_budget=time_budget,
+                    fer_floor=fer_floor)
+    for path, what in ((json_path, "--json"), (csv_path, "--csv"), (plot_path, "--plot")):
+        if path is not None:
+            parent = os.path.dirname(os.path.abspath(path))
+            if not os.path.isdir(parent):
+                raise InputError(f"{what}: directory {parent!r} does not exist.")
+    if plot_path is not None:
+        from ..plots import check_figure_path
+
+        check_figure_path(plot_path)
+    code_obj = _load_code(code)
+    # decoders and SNR values are checked by simulate() before it writes anything;
+    # check them here too so that a bad spec never opens the store
+    from ..decoders.base import make_decoder
+    from ..simulate import SNR_KINDS, _point_channel
+
+    for spec in decoders:
+        make_decoder(spec, code_obj)
+    for v in grid:
+        _point_channel(SNR_KINDS[snr_kind], snr_kind, v, code_obj.rate)
+
+    executor = None
+    if cluster:
+        from ..executors import DaskExecutor
+
+        executor = DaskExecutor(cluster)
+    store = None
+    try:
+        if store_path is not None:
+            store = Store.open_writer(store_path, code_obj)
+        progress = _Progress(not quiet)
+        res = simulate(code_obj, list(decoders), grid, snr_kind=snr_kind, seed=seed, stop=stop,
+                       chunk_frames=chunk_frames, random_codewords=random_codewords,
+                       workers=workers, executor=executor, store=store, progress=progress,
+                       confidence=confidence)
+    finally:
+        if store is not None:
+            store.close()
+        if executor is not None:
+            executor.close(abort=True)
+    click.echo(f"code {code_obj.name}: n={code_obj.n} k={code_obj.k} rate={code_obj.rate:.4f}; "
+               f"channel {res.channel['kind']} ({res.channel['codewords']} codewords); "
+               f"seed {seed}; {res.settings['executor']} x{res.settings['workers']}")
+    click.echo(res.table())
+    if json_path:
+        res.write_json(json_path)
+    if csv_path:
+        res.write_csv(csv_path)
+    if plot_path:
+        from ..plots import curves_from_sweep, plot_curves
+
+        plot_curves(curves_from_sweep(res), plot_path)
