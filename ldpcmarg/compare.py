@@ -427,6 +427,8 @@ def compare_decoders(code, decoders, *, snr, snr_unit: str = "ebn0", frames: int
                 ex = _exact_reference(code, llr, exact_method)
                 t_ref = (time.perf_counter() - t0) / frames
                 ref_p1 = np.asarray(ex.p1, dtype=np.float64)
+                if getattr(ex, "posterior_llr", None) is not None:
+                    ref_llr = np.asarray(ex.posterior_llr, dtype=np.float64)
                 ref_name = f"exact ({ex.method})"
             except InputError as exc:
                 if ref_kind == "exact":
