@@ -278,16 +278,40 @@ def test_lp_decoder_certificates(seed):
     assert np.all(res.info["num_fractional"][frac] > 0 | ~res.valid[frac])
 
 
-def test_ml_decoder_matches_brute_force_and_pickles(seed):
+@pytest.mark.parametrize("formulation", ["parity", "local"])
+def test_ml_decoder_matches_brute_force_and_pickles(seed, formulation):
     H = CODES["reg36-n18"]
     code = ParityCheckCode(H)
     words = brute_force_codewords(H)
     rng = np.random.default_rng(4000 + seed)
     llr = 1.0 + 1.5 * rng.normal(size=(10, code.n))
-    dec = make_decoder("ml:time_limit=30", code)
+    dec = make_decoder(f"ml:time_limit=30,formulation={formulation}", code)
     dec = pickle.loads(pickle.dumps(dec))
     res = dec.decode(llr)
     ml = words[np.argmin(llr @ words.T, axis=1)]
     assert res.info["proved_optimal"].all()
     assert np.array_equal(res.bits, ml.astype(np.uint8))
     assert res.valid.all()
+
+
+@pytest.mark.parametrize("formulation,frames", [("parity", 16), ("local", 4)])
+def test_ml_decoder_on_golay_frames(formulation, frames):
+    """MIP decoding equals brute-force ML over the 4096 Golay codewords."""
+    from ldpcmarg import construct
+
+    code = construct.golay24()
+    G = code.H.toarray().astype(np.int64)
+    # extended Golay is self-dual (MacWilliams & Sloane, ch. 2): C = row space of H
+    msgs = np.array(list(itertools.product([0, 1], repeat=12)), dtype=np.int64)
+    words = (msgs @ G) % 2
+    assert not ((words @ G.T) % 2).any() and len(np.unique(words, axis=0)) == 4096
+    rng = np.random.default_rng(77)
+    sigma = 0.9  # moderate noise so that hard decisions are often wrong
+    x = words[rng.integers(4096, size=frames)]
+    llr = 2 * ((1 - 2 * x) + sigma * rng.normal(size=x.shape)) / sigma**2
+    res = make_decoder("ml", code, time_limit=60, formulation=formulation).decode(llr)
+    ml = words[np.argmin(llr @ words.T, axis=1)]
+    assert res.info["proved_optimal"].all()
+    assert np.array_equal(res.bits, ml.astype(np.uint8))
+    assert np.allclose(res.info["ml_objective"], np.min(llr @ words.T, axis=1))
+    assert np.any(res.bits != (llr < 0))  # the decoder corrected something

@@ -40,7 +40,8 @@ from .._settings import DEFAULT_MAX_CHECK_DEGREE
 from ..errors import InputError, MissingExtraError, SolverError
 from .base import Decoder, DecodeResult
 
-__all__ = ["LPSolution", "LocalPolytopeLP", "LPDecoder", "MLDecoder", "INTEGRALITY_TOL"]
+__all__ = ["LPSolution", "LocalPolytopeLP", "ParityMIP", "LPDecoder", "MLDecoder",
+           "INTEGRALITY_TOL"]
 
 #: An LP optimum counts as integral (an ML certificate) when every bit value is
 #: within this distance of 0 or 1.
@@ -309,6 +310,8 @@ class LocalPolytopeLP:
             # exact block ML: no relative gap; an absolute gap far below any LLR scale
             _set_option(h, "mip_rel_gap", 0.0)
             _set_option(h, "mip_abs_gap", 1e-9)
+            # measured on Golay(24,12) frames: presolve off is 2-3x faster here
+            _set_option(h, "presolve", "off")
         self._h = h
         self._has_basis = False
         self._indices = np.arange(self.num_cols, dtype=np.int32)
@@ -478,6 +481,97 @@ def _status_text(highspy, model_status, fallback: str) -> str:
     return table.get(model_status, fallback.replace(" ", "_") or "unknown")
 
 
+class ParityMIP:
+    """Block-ML decoding as the compact MIP ``H x = 2 z`` (x binary, z integer).
+
+    Minimises ``<bit_costs, x>`` over codewords with ``n + m`` integer
+    columns and ``m`` rows, instead of the local-codeword columns of
+    ``LocalPolytopeLP(integral_bits=True)``. Measured on Golay(24,12) frames
+    (experiments/bench_lp_oracle.py notes): about ten times faster than the
+    extended model. It takes costs on bits only.
+
+    Parameters
+    ----------
+    code : ParityCheckCode
+    threads : int
+    """
+
+    def __init__(self, code, *, threads: int = 1):
+        self.code = code
+        self.n = int(code.n)
+        self.m = int(code.m)
+        self.threads = int(threads)
+        self._h = None
+
+    def _ensure_model(self):
+        if self._h is not None:
+            return self._h
+        highspy = _highspy()
+        n, m = self.n, self.m
+        A = sp.hstack([self.code.H.astype(np.float64), -2.0 * sp.identity(m, format="csc")])
+        A = sp.csc_matrix(A)
+        A.sort_indices()
+        h = _new_highs()
+        _set_option(h, "threads", self.threads)
+        lp = highspy.HighsLp()
+        lp.num_col_ = n + m
+        lp.num_row_ = m
+        lp.col_cost_ = np.zeros(n + m)
+        lp.col_lower_ = np.zeros(n + m)
+        lp.col_upper_ = np.concatenate([np.ones(n), (self.code.check_degrees // 2).astype(float)])
+        lp.row_lower_ = np.zeros(m)
+        lp.row_upper_ = np.zeros(m)
+        lp.a_matrix_.format_ = highspy.MatrixFormat.kColwise
+        lp.a_matrix_.num_col_ = n + m
+        lp.a_matrix_.num_row_ = m
+        lp.a_matrix_.start_ = A.indptr.astype(np.int32)
+        lp.a_matrix_.index_ = A.indices.astype(np.int32)
+        lp.a_matrix_.value_ = A.data.astype(np.float64)
+        lp.integrality_ = [highspy.HighsVarType.kInteger] * (n + m)
+        status = h.passModel(lp)
+        if status != highspy.HighsStatus.kOk:
+            raise SolverError(f"HiGHS refused the parity MIP (status {status}).")
+        _set_option(h, "mip_rel_gap", 0.0)
+        _set_option(h, "mip_abs_gap", 1e-9)
+        _set_option(h, "presolve", "off")
+        self._h = h
+        self._indices = np.arange(n, dtype=np.int32)
+        return h
+
+    def solve(self, bit_costs, *, time_limit: float | None = None) -> LPSolution:
+        """Minimise ``<bit_costs, x>`` over codewords; ``local`` is empty in the result."""
+        highspy = _highspy()
+        g = np.asarray(bit_costs, dtype=np.float64)
+        if g.shape != (self.n,) or not np.all(np.isfinite(g)):
+            raise InputError(f"bit_costs must be finite with shape ({self.n},); got {g.shape}.")
+        h = self._ensure_model()
+        t0 = time.perf_counter()
+        if h.changeColsCost(self.n, self._indices, g) != highspy.HighsStatus.kOk:
+            raise SolverError("HiGHS changeColsCost failed.")
+        limit = h.getRunTime() + time_limit if time_limit is not None else highspy.kHighsInf
+        _set_option(h, "time_limit", float(limit))
+        run_status = h.run()
+        seconds = time.perf_counter() - t0
+        model_status = h.getModelStatus()
+        info = h.getInfo()
+        optimal = (model_status == highspy.HighsModelStatus.kOptimal
+                   and run_status != highspy.HighsStatus.kError)
+        status_text = _status_text(highspy, model_status,
+                                   h.modelStatusToString(model_status).strip().lower())
+        if run_status == highspy.HighsStatus.kError and status_text == "optimal":
+            status_text = "error"
+        feasible = int(highspy.SolutionStatus.kSolutionStatusFeasible)
+        if optimal or int(info.primal_solution_status) == feasible:
+            x = np.asarray(h.getSolution().col_value, dtype=np.float64)[: self.n]
+            bits = np.clip(x, 0.0, 1.0)
+            objective = float(g @ bits)
+        else:
+            bits = np.full(self.n, np.nan)
+            objective = float("nan")
+        return LPSolution(bits=bits, local=np.zeros(0), objective=objective, status=status_text,
+                          optimal=bool(optimal), simplex_iterations=0, seconds=seconds)
+
+
 # ---------------------------------------------------------------- decoders
 _TIME_LIMIT = Param("float", None, low=0.0, low_open=True,
                     doc="Seconds allowed per frame (none: no limit).")
@@ -490,11 +584,18 @@ class _LPBackedDecoder(Decoder):
 
     def _setup(self) -> None:
         self._lp = None
+        if self.options.get("formulation", "local") == "local":
+            # refuse over-large checks at construction, not at the first frame
+            self.code.local_codewords(self.options["max_check_degree"])
 
-    def _model(self) -> LocalPolytopeLP:
+    def _model(self):
         if self._lp is None:
-            self._lp = LocalPolytopeLP(self.code, max_check_degree=self.options["max_check_degree"],
-                                       integral_bits=self._integral)
+            if self.options.get("formulation", "local") == "parity":
+                self._lp = ParityMIP(self.code)
+            else:
+                self._lp = LocalPolytopeLP(self.code,
+                                           max_check_degree=self.options["max_check_degree"],
+                                           integral_bits=self._integral)
         return self._lp
 
     # HiGHS objects do not pickle: ship the options only, rebuild on the other side
@@ -585,9 +686,13 @@ class LPDecoder(_LPBackedDecoder):
 class MLDecoder(_LPBackedDecoder):
     """Block-ML decoding as a HiGHS MIP: the local-polytope model with integer bits.
 
-    Minimises ``sum_i lambda_i x_i`` over codewords (integral bits force every
-    check's local distribution onto the one local codeword they spell).
-    Suited to moderate codes; the time per frame grows quickly with n.
+    Minimises ``sum_i lambda_i x_i`` over codewords. ``formulation="parity"``
+    (default) solves the compact MIP ``H x = 2 z`` (:class:`ParityMIP`);
+    ``"local"`` solves the local-polytope model with integer bit columns
+    (integral bits force every check's local distribution onto the one local
+    codeword they spell). Both are exact; the compact one was about ten times
+    faster on Golay(24,12) frames. Suited to moderate codes; the time per
+    frame grows quickly with n.
 
     Outputs
     -------
@@ -603,7 +708,10 @@ class MLDecoder(_LPBackedDecoder):
 
     name = "ml"
     description = "Block-ML decoding as a HiGHS MIP (moderate codes)."
-    params = {"time_limit": _TIME_LIMIT, "max_check_degree": _MAX_DEG}
+    params = {"time_limit": _TIME_LIMIT, "max_check_degree": _MAX_DEG,
+              "formulation": Param("choice", "parity", choices=("parity", "local"),
+                                   doc="Compact parity MIP or local-polytope model with integer "
+                                       "bits.")}
     hard_output = True
     _integral = True
 
