@@ -80,6 +80,9 @@ def test_tanner_155_64_parameters():
     lambda: C.peg(30, 15, 2, seed=1),
     lambda: C.gallager(20, 2, 4, seed=3),
     lambda: C.tree_code(6, seed=2),
+    lambda: C.array_code(5, 3, 4),   # girth 6
+    lambda: C.array_code(5, 2, 5),   # girth 8
+    lambda: C.peg(24, 12, 2, seed=0),
 ])
 def test_girth_and_cycle_count_match_brute_force(builder):
     code = builder()
