@@ -431,7 +431,10 @@ def test_candidate_oracle_falls_back_to_exact_solver():
     sol = oracle.solve(g, h)
     assert sol.route == "fallback" and not sol.certified
     assert sol.objective == pytest.approx(opt, abs=1e-7)
-    assert sol.bound <= opt + 1e-9
+    # the bound is re-evaluated at HiGHS's row duals: valid, and tight at an LP optimum
+    # (strong duality); 1e-6 covers HiGHS's optimality tolerance of 1e-7 per row
+    assert opt - 1e-6 <= sol.bound <= opt + 1e-9
+    np.testing.assert_allclose(sol.bound, lagrangian_bound(code, None, g, h, oracle.dual.mu))
     assert oracle.counts["fallback"] == 1
 
 
@@ -463,3 +466,68 @@ def test_inputs_are_validated():
         DualAscent(code, schedule="fast")
     with pytest.raises(InputError):
         DualCandidateOracle(code, tol=-1.0)
+
+
+def exact_lifted_marginals(code, lam):
+    """P(x_i = 1) and per-check local-codeword probabilities by enumeration (tiny codes)."""
+    lc = code.local_codewords()
+    H = code.H.toarray()
+    words, weights = [], []
+    for x in itertools.product((0, 1), repeat=code.n):
+        x = np.array(x)
+        if not (H @ x % 2).any():
+            words.append(x)
+            weights.append(-float(lam @ x))
+    words = np.array(words)
+    w = np.exp(np.array(weights) - max(weights))
+    w /= w.sum()
+    tb = w @ words
+    tl = np.zeros(lc.count)
+    for c in range(code.m):
+        support = np.flatnonzero(H[c])
+        P = lc.patterns(c, support.size)
+        for j, p in enumerate(P):
+            match = np.all(words[:, support] == p, axis=1)
+            tl[lc.offset[c] + j] = w[match].sum()
+    return tb, tl
+
+
+def test_certificate_at_exact_tree_posteriors(seed):
+    # Bethe is exact on a tree (Yedidia, Freeman & Weiss 2005): the exact marginals minimise
+    # F, the FW gap there is 0, and the dual certificate must confirm it to 1e-8.
+    rng = np.random.default_rng(1000 + seed)
+    code = tree_code()
+    lc = code.local_codewords()
+    lam = rng.normal(1.0, 2.0, code.n)
+    tb, tl = exact_lifted_marginals(code, lam)
+    F, gb, gl = free_energy(code, lc, np.ones(code.m), lam, tb, tl)
+    assert F == pytest.approx(-log_partition(code, lam), abs=1e-9)
+    oracle = DualCandidateOracle(code, fallback=None, max_sweeps=500)
+    sol = oracle.solve(gb, gl, tau=(tb, tl), gap_target=1e-8)
+    assert sol.route == "certified-point"
+    assert certified_gap(gb, gl, tb, tl, sol.bound) <= 1e-8
+    # at the uniform point the gap is large: the same request must not certify it
+    u_b = np.full(code.n, 0.5)
+    u_l = 1.0 / np.diff(lc.offset).astype(float)[lc.owner]
+    F_u, gb_u, gl_u = free_energy(code, lc, np.ones(code.m), lam, u_b, u_l)
+    assert F_u - F > 1e-3
+    sol_u = oracle.solve(gb_u, gl_u, tau=(u_b, u_l), gap_target=1e-8)
+    assert sol_u.route != "certified-point"
+    assert sol_u.gap >= 0 and certified_gap(gb_u, gl_u, u_b, u_l, sol_u.bound) >= F_u - F - 1e-9
+
+
+def test_accept_fraction_gives_multiplicative_oracle(seed):
+    rng = np.random.default_rng(1100 + seed)
+    code = random_regular_code(24, 3, 6, 11)
+    oracle = DualCandidateOracle(code, fallback=None)
+    for tb, tl in interior_points(code, rng, 2):
+        g, h = random_costs(code, rng)
+        opt, _ = lp_optimum(code, g, h)
+        sol = oracle.solve(g, h, tau=(tb, tl), accept_fraction=0.5)
+        gtau = float(g @ tb + h @ tl)
+        if sol.certified:
+            # <c, tau - s> >= (1 - 0.5) (<c, tau> - LP*)
+            assert gtau - sol.objective >= 0.5 * (gtau - opt) - 1e-7
+        check_in_polytope(code, sol.bits, sol.local)
+    with pytest.raises(InputError):
+        oracle.solve(g, h, accept_fraction=0.5)

@@ -699,7 +699,9 @@ class OracleSolution:
         ``<g, bits> + <h, local>``.
     status : str
         ``"certified-lagrangian"``, ``"certified-word"``, ``"certified-restricted"``
-        (the point is proved within ``tol`` of the optimum by the dual bound),
+        (the point is proved within the acceptance tolerance of the optimum by
+        the dual bound), ``"certified-point"`` (the caller's point ``tau`` was
+        returned, proved within ``gap_target`` or the tolerance),
         ``"fallback"`` (exact solver's answer) or ``"uncertified"`` (no
         fallback configured; the point is feasible but not proved optimal).
     optimal : bool
@@ -780,8 +782,9 @@ class DualCandidateOracle:
     """
 
     def __init__(self, code, fallback="highs", *, tol: float = 1e-9, rel_tol: float = 1e-9,
-                 max_sweeps: int = 100, slack: float = 1.0, schedule: str = "anneal",
-                 restricted: bool = True, max_rounds: int = 20, lc=None):
+                 max_sweeps: int = 100, slack: float = 3.0, schedule: str = "anneal",
+                 restricted: bool = True, max_rounds: int = 20, restricted_method: str = "ipm",
+                 lc=None):
         if tol < 0 or rel_tol < 0:
             raise InputError(f"Tolerances must be >= 0; got tol={tol}, rel_tol={rel_tol}.")
         if slack < 0:
@@ -796,6 +799,11 @@ class DualCandidateOracle:
         self.slack = float(slack)
         self.restricted = bool(restricted)
         self.max_rounds = int(max_rounds)
+        if restricted_method not in ("ipm", "simplex"):
+            raise InputError(
+                f"restricted_method must be 'ipm' or 'simplex'; got {restricted_method!r}."
+            )
+        self.restricted_method = restricted_method
         self.price_tol = 1e-9
         if self.max_rounds < 1:
             raise InputError(f"max_rounds must be >= 1; got {max_rounds}.")
@@ -884,7 +892,8 @@ class DualCandidateOracle:
         gr = self._gr
         run = hs.run()
         info = hs.getInfo()
-        iters = max(int(info.simplex_iteration_count), 0)
+        iters = max(int(info.simplex_iteration_count), 0) + max(
+            int(info.crossover_iteration_count), 0)
         if (hs.getModelStatus() != highspy.HighsModelStatus.kOptimal
                 or run == highspy.HighsStatus.kError):
             return None, iters
@@ -898,9 +907,38 @@ class DualCandidateOracle:
         # "sum_{S ∋ i} tau_c(S) - tau_i = 0" in D(mu) are mu = -y on the edge rows.
         return (bits, local, -y[gr.m:], y[: gr.m]), iters
 
+    def _bound_from_fallback_duals(self, fb, g, h, bound):
+        """Lagrangian bound at the fallback solver's row duals, if it exposes a HiGHS model.
+
+        ``LocalPolytopeLP`` keeps its ``Highs`` object in ``_h`` with edge rows
+        ``tau_i - sum_{S ∋ i} tau_c(S) = 0`` (rows ``m + e``); whatever the sign
+        convention, ``D(mu)`` is a valid bound for any ``mu``, so both signs are
+        evaluated and the better one (with the dual-ascent bound) is kept. The
+        multipliers also warm-start the next dual ascent.
+        """
+        gr = self._gr
+        hs = getattr(fb, "_h", None)
+        if hs is None:
+            return bound
+        try:
+            y = np.asarray(hs.getSolution().row_dual, dtype=np.float64)
+        except Exception:  # pragma: no cover - a solver without duals
+            return bound
+        if y.shape != (gr.m + gr.E,) or not np.all(np.isfinite(y)):
+            return bound
+        for mu in (y[gr.m:], -y[gr.m:]):
+            mu = np.ascontiguousarray(mu)
+            ev = _evaluate(gr, g, h, mu)
+            if ev[0] > bound:
+                bound = ev[0]
+                self.dual.mu[:] = mu
+                self.dual.last = ev
+        return bound
+
     # ------------------------------------------------------------------ solve
     def solve(self, bit_costs, local_costs=None, *, warm: bool = True,
-              time_limit: float | None = None, tol: float | None = None) -> OracleSolution:
+              time_limit: float | None = None, tol: float | None = None, tau=None,
+              gap_target: float | None = None, accept_fraction: float = 0.0) -> OracleSolution:
         """Minimise ``<bit_costs, tau_bits> + <local_costs, tau_local>`` over ``L``.
 
         Parameters
@@ -916,6 +954,22 @@ class DualCandidateOracle:
         tol : float, optional
             Absolute acceptance tolerance for this call (default: the
             constructor's ``tol``); ``rel_tol * |bound|`` is added on top.
+        tau : tuple (tau_bits (n,), tau_local (K,)), optional
+            The current Frank–Wolfe iterate (a point of ``L``). Enables the two
+            options below.
+        gap_target : float, optional
+            With ``tau``: if dual ascent proves ``<c, tau> - bound <= gap_target``
+            (``c`` the costs), return ``tau`` itself (status ``"certified-point"``)
+            without building any candidate: ``tau`` is then a ``gap_target``-approximate
+            minimiser, and ``certified_gap(..., tau, bound) <= gap_target`` certifies
+            the Frank–Wolfe iterate.
+        accept_fraction : float in [0, 1)
+            With ``tau``: accept a candidate ``s`` once ``<c, s> - bound <=
+            accept_fraction * (<c, tau> - bound)`` (or the absolute tolerance).
+            Then ``<c, tau - s> >= (1 - accept_fraction) * (<c, tau> - LP*)``: a
+            multiplicative approximate oracle, enough for Frank–Wolfe's
+            convergence guarantees with a constant factor (Lacoste-Julien & Jaggi,
+            NeurIPS 2015, approximate linear oracles; from memory).
 
         Returns
         -------
@@ -929,16 +983,40 @@ class DualCandidateOracle:
         accept = self.tol if tol is None else float(tol)
         if not accept >= 0:
             raise InputError(f"The oracle tolerance must be >= 0; got {tol!r}.")
+        if not 0.0 <= accept_fraction < 1.0:
+            raise InputError(f"accept_fraction must be in [0, 1); got {accept_fraction!r}.")
+        gtau = None
+        if tau is not None:
+            tb = _as_vector(tau[0], gr.n, "point's bit marginals")
+            tl = _as_vector(tau[1], gr.K, "point's local weights")
+            gtau = float(g @ tb + h @ tl)
+        elif gap_target is not None or accept_fraction > 0:
+            raise InputError("gap_target and accept_fraction need the current point tau.")
         self.counts["calls"] += 1
         if not warm:
             self.dual.reset()
-        res = self.dual.run(g, h, max_sweeps=self.max_sweeps)
+        target = None
+        if gap_target is not None and gtau is not None:
+            if not gap_target >= 0:
+                raise InputError(f"gap_target must be >= 0; got {gap_target!r}.")
+            target = gtau - float(gap_target)
+        res = self.dual.run(g, h, max_sweeps=self.max_sweeps, target=target)
         bound, theta, r, argmin = self.dual.last
+        if target is not None and bound >= target:
+            route = "certified-point"
+            self.counts["certified"] += 1
+            self.routes[route] = self.routes.get(route, 0) + 1
+            return OracleSolution(tb.copy(), tl.copy(), gtau, route, True, 0,
+                                  time.perf_counter() - t0, bound, gtau - bound, True, route,
+                                  res.sweeps, 0)
         iters = 0
         best = None  # (objective, bits, local, route)
 
         def limit():
-            return accept + self.rel_tol * abs(bound)
+            lim = accept + self.rel_tol * abs(bound)
+            if gtau is not None and accept_fraction > 0:
+                lim = max(lim, accept_fraction * (gtau - bound))
+            return lim
 
         def offer(point, route):
             nonlocal best
@@ -946,6 +1024,8 @@ class DualCandidateOracle:
             if best is None or obj < best[0]:
                 best = (obj, point[0], point[1], route)
 
+        if gtau is not None:
+            offer((tb.copy(), tl.copy()), "certified-point")
         x = (r < 0.0).astype(np.uint8)
         if _consistency_kernel(gr.check_ptr, gr.edge_var, gr.offset, gr.bit_ptr, gr.bits,
                                argmin, x):
@@ -963,9 +1043,18 @@ class DualCandidateOracle:
             keep = theta - theta[argmin][self._lc.owner] <= window
             keep[self._zero_cols] = True
             cols = np.flatnonzero(keep).astype(np.int64)
-            hs = self._restricted_model(g, h, cols)
+            hs = None
             while rounds < self.max_rounds:
+                if time_limit is not None and time.perf_counter() - t0 > time_limit:
+                    break
                 rounds += 1
+                if hs is None:
+                    hs = self._restricted_model(g, h, cols)
+                    if self.restricted_method == "ipm":
+                        # the restricted LP is highly degenerate: interior point + crossover
+                        # (measured several times faster than the dual simplex here)
+                        hs.setOptionValue("solver", "ipm")
+                        hs.setOptionValue("run_crossover", "on")
                 out, it = self._restricted_run(hs, g, h, cols)
                 iters += it
                 if out is None:
@@ -984,10 +1073,13 @@ class DualCandidateOracle:
                 if new.size == 0:
                     break
                 keep[new] = True
-                st, ix, va = self._column_block(new)
-                hs.addCols(int(new.size), h[new], np.zeros(new.size),
-                           np.full(new.size, np.inf), int(ix.size), st, ix, va)
                 cols = np.concatenate((cols, new))
+                if self.restricted_method == "ipm":
+                    hs = None  # fresh interior-point solve on the enlarged column set
+                else:  # hot simplex from the current basis with the new columns
+                    st, ix, va = self._column_block(new)
+                    hs.addCols(int(new.size), h[new], np.zeros(new.size),
+                               np.full(new.size, np.inf), int(ix.size), st, ix, va)
         seconds = time.perf_counter() - t0
         if best is not None and best[0] - bound <= limit():
             self.counts["certified"] += 1
@@ -1005,11 +1097,15 @@ class DualCandidateOracle:
             return OracleSolution(best[1], best[2], best[0], "uncertified", False, iters, seconds,
                                   bound, best[0] - bound, False, "uncertified", res.sweeps,
                                   rounds)
-        kw = {} if time_limit is None else {"time_limit": time_limit}
+        kw = {}
+        if time_limit is not None:
+            kw["time_limit"] = max(time_limit - (time.perf_counter() - t0), 1e-3)
         sol = fb.solve(g, h, warm=warm, **kw)
         self.counts["fallback"] += 1
         self.routes["fallback"] = self.routes.get("fallback", 0) + 1
         obj = float(sol.objective)
+        if sol.optimal:
+            bound = self._bound_from_fallback_duals(fb, g, h, bound)
         return OracleSolution(np.asarray(sol.bits, dtype=np.float64),
                               np.asarray(sol.local, dtype=np.float64), obj, "fallback",
                               bool(sol.optimal), iters + int(sol.simplex_iterations),
