@@ -315,3 +315,34 @@ def test_ml_decoder_on_golay_frames(formulation, frames):
     assert np.array_equal(res.bits, ml.astype(np.uint8))
     assert np.allclose(res.info["ml_objective"], np.min(llr @ words.T, axis=1))
     assert np.any(res.bits != (llr < 0))  # the decoder corrected something
+
+
+def lagrangian_bound(code, lc, g, h, mu):
+    """DESIGN.md section 5a bound, written out with plain loops over checks."""
+    total = 0.0
+    for c in range(code.m):
+        d = int(code.check_degrees[c])
+        pats = lc.patterns(c, d).astype(float)
+        e = code.check_ptr[c] + np.arange(d)
+        total += np.min(h[lc.offset[c]:lc.offset[c + 1]] + pats @ mu[e])
+    mu_bit = np.zeros(code.n)
+    np.add.at(mu_bit, code.edge_var, mu)
+    return total + np.minimum(0.0, g - mu_bit).sum()
+
+
+@pytest.mark.parametrize("name", ["hamming74", "reg36-n18", "tree"])
+def test_duals_close_the_lagrangian_bound(name):
+    """Strong LP duality: the section 5a bound at the edge duals equals the optimum."""
+    code = ParityCheckCode(CODES[name])
+    lp = LocalPolytopeLP(code)
+    rng = np.random.default_rng(31)
+    for warm in (False, True, True):
+        g = rng.normal(size=code.n)
+        h = rng.normal(size=lp.num_local)
+        sol = lp.solve(g, h, warm=warm)
+        nu, mu = lp.duals()
+        assert nu.shape == (code.m,) and mu.shape == (code.num_edges,)
+        # weak duality holds for any multipliers, equality at the optimal ones
+        assert lagrangian_bound(code, lp.local_codewords, g, h, 0.0 * mu) <= sol.objective + 1e-9
+        assert lagrangian_bound(code, lp.local_codewords, g, h, mu) == pytest.approx(
+            sol.objective, abs=1e-8)

@@ -340,6 +340,37 @@ class LocalPolytopeLP:
             raise InputError(f"LP costs must be finite; {where} has {cost[bad]!r}.")
         return cost
 
+    def duals(self) -> tuple[np.ndarray, np.ndarray]:
+        """Row duals of the last solve, which must have been an optimal LP solve.
+
+        Returns
+        -------
+        check_duals : ndarray of shape (m,), float64
+            Duals ``nu_c`` of the rows ``sum_S tau_c(S) = 1``.
+        edge_duals : ndarray of shape (E,), float64
+            Duals ``mu_e`` of the rows ``tau_i - sum_{S containing i} tau_c(S) = 0``,
+            edges in check-major order.
+
+        Notes
+        -----
+        HiGHS convention: reduced costs are ``cost - A^T y``. With the rows above,
+        ``mu = edge_duals`` are the multipliers of DESIGN.md section 5a: the
+        Lagrangian bound ``sum_c min_S [h_c(S) + sum_{i in S} mu_ic] +
+        sum_i min(0, g_i - sum_{c containing i} mu_ic)`` equals the LP optimum
+        at these duals (strong duality; checked in tests/test_lp.py).
+
+        Raises
+        ------
+        SolverError
+            When there is no optimal LP solution to read duals from.
+        """
+        if self._h is None or not getattr(self, "_last_optimal", False):
+            raise SolverError("No optimal LP solve to read duals from (solve first).")
+        y = np.asarray(self._h.getSolution().row_dual, dtype=np.float64)
+        if y.shape != (self.num_rows,):
+            raise SolverError("HiGHS returned row duals of the wrong length.")
+        return y[: self.m].copy(), y[self.m:].copy()
+
     def reset(self) -> None:
         """Forget the current basis: the next :meth:`solve` is cold."""
         if self._h is not None:
@@ -455,6 +486,7 @@ class LocalPolytopeLP:
         elif not self.integral_bits:
             h.clearSolver()
             self._has_basis = False
+        self._last_optimal = bool(optimal) and not self.integral_bits
         return LPSolution(bits=bits, local=local, objective=objective, status=status_text,
                           optimal=bool(optimal), simplex_iterations=iters, seconds=seconds)
 
