@@ -298,7 +298,7 @@ def _read_npz(path: Path):
     if np.any(bad):
         j = int(np.flatnonzero(bad)[0])
         raise _err(path, f"entry ({coo.row[j]}, {coo.col[j]})",
-                   f"value {data[j]!r} is not 0 or 1.")
+                   f"value {float(data[j]):g} is not 0 or 1.")
     keep = data != 0
     rows, cols = coo.row[keep].astype(np.int64), coo.col[keep].astype(np.int64)
     if rows.size == 0:
@@ -427,7 +427,7 @@ def save_code(code: ParityCheckCode, path, fmt: str | None = None) -> Path:
             coo = sp.coo_matrix(code.H)
             pattern = sp.coo_matrix((np.ones(coo.nnz), (coo.row, coo.col)), shape=coo.shape)
             scipy.io.mmwrite(str(path), pattern, comment=" " + comment.replace("\n", "\n "),
-                             field="pattern")
+                             field="pattern", symmetry="general")
             if path.suffix.lower() != ".mtx" and Path(str(path) + ".mtx").exists():
                 Path(str(path) + ".mtx").replace(path)
         else:
