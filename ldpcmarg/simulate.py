@@ -83,7 +83,8 @@ __all__ = [
     "SNR_KINDS",
 ]
 
-#: SNR kind -> channel kind. ``ebn0_db``/``esn0_db`` in dB, ``p`` BSC crossover, ``epsilon`` BEC erasure.
+#: SNR kind -> channel kind: ``ebn0_db``/``esn0_db`` in dB, ``p`` BSC crossover,
+#: ``epsilon`` BEC erasure probability.
 SNR_KINDS = {"ebn0_db": "awgn", "esn0_db": "awgn", "p": "bsc", "epsilon": "bec"}
 
 #: Version of the chunk/seed scheme; part of a run's identity in the store.
@@ -517,7 +518,8 @@ class SweepResult:
                 f"{p.fer:9.3e} {p.ber:9.3e} [{lo:9.2e},{hi:9.2e}] {p.avg_iterations:6.2f} "
                 f"{ms:7.3f} {p.stop}")
         if self.skipped:
-            lines.append(f"(skipped after the FER floor: {', '.join(f'{s:g}' for s in self.skipped)})")
+            pts = ", ".join(f"{s:g}" for s in self.skipped)
+            lines.append(f"(skipped after the FER floor: {pts})")
         return "\n".join(lines)
 
 

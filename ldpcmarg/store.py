@@ -146,12 +146,14 @@ class Store:
         if os.path.isdir(path):
             raise StoreError(f"The store path {path!r} is a directory; give a file name.")
         if not os.path.isdir(parent):
-            raise StoreError(f"Cannot create the store {path!r}: directory {parent!r} does not exist.")
+            raise StoreError(
+                f"Cannot create the store {path!r}: directory {parent!r} does not exist.")
         exists = os.path.exists(path)
         if exists and not os.access(path, os.R_OK | os.W_OK):
             raise StoreError(f"The store {path!r} is not writable.")
         if not os.access(parent, os.W_OK):
-            raise StoreError(f"Cannot write the store {path!r}: directory {parent!r} is not writable.")
+            raise StoreError(
+                f"Cannot write the store {path!r}: directory {parent!r} is not writable.")
         lock_fd = _acquire_lock(path + ".lock")
         conn = None
         try:

@@ -171,7 +171,8 @@ def test_random_codewords_min_sum_consistent(ldpc96):
                    random_codewords=True)
     a, b = zero.points[0], rnd.points[0]
     assert a.frame_errors > 20 and b.frame_errors > 20
-    table = [[a.frame_errors, a.frames - a.frame_errors], [b.frame_errors, b.frames - b.frame_errors]]
+    table = [[a.frame_errors, a.frames - a.frame_errors],
+             [b.frame_errors, b.frames - b.frame_errors]]
     assert fisher_exact(table).pvalue > 1e-3
 
 

@@ -100,7 +100,8 @@ def _positive(name):
                    "'ldpcmarg decoders NAME' lists the options.")
 @click.option("--channel", type=click.Choice(["awgn", "bsc", "bec"]), default="awgn",
               show_default=True, help="Channel: BPSK over AWGN, BSC or BEC.")
-@click.option("--ebn0", metavar="GRID", help=f"AWGN Eb/N0 points in dB (uses rate k/n); {GRID_HELP}.")
+@click.option("--ebn0", metavar="GRID",
+              help=f"AWGN Eb/N0 points in dB (uses rate k/n); {GRID_HELP}.")
 @click.option("--esn0", metavar="GRID", help="AWGN Es/N0 points in dB (symbol SNR, Es = 1), "
                                               "instead of --ebn0.")
 @click.option("--param", "param_grid", metavar="GRID",
@@ -173,7 +174,8 @@ def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_f
                           "--ebn0" if ebn0 is not None else "--esn0")
     else:
         if ebn0 is not None or esn0 is not None:
-            raise InputError(f"--ebn0/--esn0 are for AWGN; give --param GRID for --channel {channel}.")
+            raise InputError(
+                f"--ebn0/--esn0 are for AWGN; give --param GRID for --channel {channel}.")
         if param_grid is None:
             what = "crossover probability p" if channel == "bsc" else "erasure probability epsilon"
             raise InputError(f"--channel {channel} needs --param GRID (the {what}).")
