@@ -1,0 +1,124 @@
+"""CLI 'build' and 'inspect': tables, JSON, and one clear error (no traceback) per bad file."""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from ldpcmarg.cli import main
+from test_io import malformed_files
+
+ROOT = Path(__file__).resolve().parent.parent
+
+
+def run(argv, capsys):
+    """Run the CLI in-process; return (exit status, stdout, stderr)."""
+    try:
+        main(argv)
+        status = 0
+    except SystemExit as exc:
+        status = exc.code if isinstance(exc.code, int) else 1
+    out = capsys.readouterr()
+    return status, out.out, out.err
+
+
+def test_every_malformed_file_gives_one_line_error(tmp_path, capsys):
+    for label, path, fragment in malformed_files(tmp_path):
+        status, out, err = run(["inspect", str(path)], capsys)
+        assert status == 2, label
+        assert "Traceback" not in err and out == "", label
+        lines = err.strip().splitlines()
+        assert len(lines) == 1 and lines[0].startswith("Error: "), (label, err)
+        assert fragment in lines[0] and path.name in lines[0], (label, err)
+
+
+@pytest.mark.parametrize("content,fragment", [
+    ("ldpcmarg-checks n=4 m=1\n0 9\n", "out of range"),
+    ("%%MatrixMarket matrix coordinate pattern general\n2 2 2\n1 1\n1 1\n", "duplicate entry"),
+])
+def test_subprocess_has_no_traceback(tmp_path, content, fragment):
+    p = tmp_path / ("bad.txt" if content.startswith("ldpc") else "bad.mtx")
+    p.write_text(content)
+    res = subprocess.run([sys.executable, "-m", "ldpcmarg", "inspect", str(p)], cwd=ROOT,
+                         capture_output=True, text=True, timeout=120)
+    assert res.returncode != 0
+    assert "Traceback" not in res.stderr
+    assert fragment in res.stderr and len(res.stderr.strip().splitlines()) == 1
+
+
+def test_inspect_table_and_json(capsys):
+    status, out, err = run(["inspect", "tanner-155-64", "--dmin-budget", "300"], capsys)
+    assert status == 0, err
+    assert "k = n - rank           64" in out
+    # Tanner, Sridhara & Fuja (2001): girth 8, minimum distance 20
+    assert "girth                  8 (" in out
+    assert "<= 20 (upper bound" in out
+    status, out, _ = run(["inspect", "hamming-7-4", "--json"], capsys)
+    rep = json.loads(out)
+    assert rep["k"] == 4 and rep["min_distance"] == {
+        "value": 3, "exact": True, "method": "exhaustive enumeration of 2^4 codewords"}
+    assert rep["girth"] == 4 and rep["shortest_cycles"] == 3
+    assert rep["zero_weight_columns"] == [] and rep["zero_rows"] == []
+
+
+def test_inspect_reports_zero_columns_and_rows(tmp_path, capsys):
+    p = tmp_path / "z.txt"
+    p.write_text("ldpcmarg-checks n=5 m=3\n0 1\n-\n1 3\n")
+    status, out, _ = run(["inspect", str(p)], capsys)
+    assert status == 0
+    assert "zero-weight columns    2, 4 (2)  <- unprotected bits" in out
+    assert "all-zero rows          1 (1)" in out
+    assert "1 (exact" in out  # an unprotected bit is a weight-1 codeword
+
+
+def test_inspect_list(capsys):
+    status, out, _ = run(["inspect", "--list"], capsys)
+    assert status == 0 and "tanner-155-64" in out and "drifter-256-128" in out
+
+
+@pytest.mark.parametrize("args,check", [
+    (["peg", "-n", "96", "--bit-degree", "3", "--check-degree", "6", "--seed", "3"],
+     lambda c: c.n == 96 and c.m == 48 and (c.check_degrees == 6).all()),
+    (["peg", "-n", "200", "--bit-dist", "2:0.3,3:0.7", "--check-dist", "6:1", "--order",
+      "descending"], lambda c: c.n == 200 and set(c.var_degrees.tolist()) == {2, 3}),
+    (["regular", "-n", "60", "--bit-degree", "3", "--check-degree", "6"],
+     lambda c: (c.var_degrees == 3).all()),
+    (["gallager", "-n", "60", "--bit-degree", "3", "--check-degree", "6"],
+     lambda c: (c.check_degrees == 6).all()),
+    (["irregular", "-n", "60", "--bit-dist", "2:0.5,3:0.5", "--check-dist", "5:1"],
+     lambda c: c.n == 60),
+    (["qc", "--exponents", "0,1,2;0,2,4", "--circulant", "5"], lambda c: c.n == 15 and c.m == 10),
+    (["array", "--prime", "7", "--block-rows", "3", "--block-cols", "7"], lambda c: c.n == 49),
+    (["hamming", "--parity-bits", "3"], lambda c: c.k == 4),
+    (["golay"], lambda c: c.k == 12),
+    (["repetition", "-n", "5"], lambda c: c.k == 1),
+    (["parity", "-n", "5"], lambda c: c.k == 4),
+    (["tree", "-m", "8", "--seed", "2"], lambda c: c.girth() == 0),
+])
+@pytest.mark.parametrize("ext", ["txt", "mtx", "npz"])
+def test_build_then_load(tmp_path, capsys, args, check, ext):
+    from ldpcmarg.io import load_code
+    out_path = tmp_path / f"c.{ext}"
+    status, out, err = run(["build", *args, "-o", str(out_path)], capsys)
+    assert status == 0, err
+    assert out.startswith(f"wrote {out_path}")
+    assert check(load_code(out_path))
+
+
+def test_build_errors(tmp_path, capsys):
+    p = tmp_path / "x.txt"
+    status, _, err = run(["build", "peg", "-o", str(p)], capsys)
+    assert status == 2 and "needs --length" in err
+    status, _, err = run(["build", "irregular", "-n", "10", "--bit-dist", "2-0.5",
+                          "--check-dist", "4:1", "-o", str(p)], capsys)
+    assert status == 2 and "degree:fraction" in err
+    status, _, err = run(["build", "hamming", "--parity-bits", "3", "-o", str(p)], capsys)
+    assert status == 0
+    status, _, err = run(["build", "hamming", "--parity-bits", "3", "-o", str(p)], capsys)
+    assert status == 2 and "--force" in err
+    status, _, err = run(["build", "nosuch", "-o", str(p)], capsys)
+    assert status != 0 and "Traceback" not in err
