@@ -346,3 +346,28 @@ def test_duals_close_the_lagrangian_bound(name):
         assert lagrangian_bound(code, lp.local_codewords, g, h, 0.0 * mu) <= sol.objective + 1e-9
         assert lagrangian_bound(code, lp.local_codewords, g, h, mu) == pytest.approx(
             sol.objective, abs=1e-8)
+
+
+@pytest.mark.parametrize("formulation", ["parity", "local"])
+def test_ml_time_limit_is_flagged(formulation):
+    code = ParityCheckCode(random_regular_H(240, 3, 6, seed=4))
+    rng = np.random.default_rng(5)
+    llr = 0.5 + 1.5 * rng.normal(size=(2, code.n))  # very noisy: a hard MIP
+    res = make_decoder("ml", code, time_limit=1e-5, formulation=formulation).decode(llr)
+    assert not res.info["proved_optimal"].any()
+    assert res.bits.shape == (2, code.n) and res.bits.dtype == np.uint8
+    # a returned word is either a codeword found by the MIP (objective given) or the
+    # channel hard decision (objective NaN)
+    found = np.isfinite(res.info["ml_objective"])
+    assert np.all(res.valid[found])
+    assert np.array_equal(res.bits[~found], (llr[~found] < 0).astype(np.uint8))
+
+
+def test_lp_decoder_time_limit_is_flagged():
+    code = ParityCheckCode(random_regular_H(240, 3, 6, seed=4))
+    rng = np.random.default_rng(6)
+    llr = 0.5 + 1.5 * rng.normal(size=(2, code.n))
+    res = make_decoder("lp", code, time_limit=1e-6).decode(llr)
+    assert not res.info["proved_optimal"].any() and not res.info["ml_certificate"].any()
+    assert np.isnan(res.info["pseudo_codeword"]).all()
+    assert np.array_equal(res.bits, (llr < 0).astype(np.uint8))

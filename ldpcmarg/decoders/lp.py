@@ -740,7 +740,10 @@ class MLDecoder(_LPBackedDecoder):
 
     name = "ml"
     description = "Block-ML decoding as a HiGHS MIP (moderate codes)."
-    params = {"time_limit": _TIME_LIMIT, "max_check_degree": _MAX_DEG,
+    params = {"time_limit": _TIME_LIMIT,
+              "max_check_degree": Param("int", DEFAULT_MAX_CHECK_DEGREE, low=1, high=24,
+                                        doc="formulation=local only: refuse checks of larger "
+                                            "degree."),
               "formulation": Param("choice", "parity", choices=("parity", "local"),
                                    doc="Compact parity MIP or local-polytope model with integer "
                                        "bits.")}
