@@ -53,22 +53,22 @@ __all__ = [
 # --------------------------------------------------------------------- packing
 def pack_rows(dense: np.ndarray) -> np.ndarray:
     """Pack a 0/1 matrix of shape (r, c) into uint64 words of shape (r, ceil(c/64))."""
-    dense = np.ascontiguousarray(dense, dtype=np.uint8)
+    dense = np.asarray(dense)
     r, c = dense.shape
     words = (c + 63) // 64
     padded = np.zeros((r, words * 64), dtype=np.uint8)
-    padded[:, :c] = dense
-    bits = padded.reshape(r, words, 64)
-    weights = np.uint64(1) << np.arange(64, dtype=np.uint64)
-    return (bits.astype(np.uint64) * weights).sum(axis=2, dtype=np.uint64)
+    padded[:, :c] = dense != 0
+    # little bit order within bytes + little-endian words: bit j -> word j//64, bit j%64
+    packed = np.packbits(padded, axis=1, bitorder="little")
+    return np.ascontiguousarray(packed).view("<u8").astype(np.uint64, copy=False).reshape(r, words)
 
 
 def unpack_rows(packed: np.ndarray, ncols: int) -> np.ndarray:
     """Inverse of :func:`pack_rows`: (r, words) uint64 -> (r, ncols) uint8."""
+    packed = np.ascontiguousarray(packed, dtype=np.uint64)
     r, words = packed.shape
-    shifts = np.arange(64, dtype=np.uint64)
-    bits = ((packed[:, :, None] >> shifts) & np.uint64(1)).astype(np.uint8)
-    return bits.reshape(r, words * 64)[:, :ncols].copy()
+    as_bytes = packed.astype("<u8", copy=False).view(np.uint8).reshape(r, words * 8)
+    return np.unpackbits(as_bytes, axis=1, count=ncols, bitorder="little")
 
 
 @nb.njit(**NUMBA_OPTS)
@@ -349,17 +349,13 @@ def systematic_form(M, col_order: np.ndarray | None = None) -> SystematicForm:
     is_piv = np.zeros(n, dtype=bool)
     is_piv[piv_t] = True
     free_t = np.flatnonzero(~is_piv).astype(np.int64)  # permuted indices
+    # information set in increasing original position
+    free_t = free_t[np.argsort(order[free_t], kind="stable")]
     k = free_t.shape[0]
     pmap = np.zeros((rk, max((k + 63) // 64, 1)), dtype=np.uint64)
     _gather_columns_kernel(packed, rk, free_t, pmap)
     info = order[free_t]
     parity = order[piv_t]
-    # present the information set in increasing position order
-    srt = np.argsort(info, kind="stable")
-    if k and not np.all(srt == np.arange(k)):
-        bits = unpack_rows(pmap, k)[:, srt]
-        pmap = pack_rows(bits) if rk else np.zeros((0, pmap.shape[1]), dtype=np.uint64)
-        info = info[srt]
     return SystematicForm(info=info.astype(np.int64), parity=parity.astype(np.int64),
                           parity_map=np.ascontiguousarray(pmap), n=int(n))
 
