@@ -310,7 +310,9 @@ class DaskExecutor(Executor):
         if done or not handles:
             return done
         try:
-            res = self._distributed.wait(handles, timeout=timeout, return_when="FIRST_COMPLETED")
+            with self._client.as_current():
+                res = self._distributed.wait(handles, timeout=timeout,
+                                             return_when="FIRST_COMPLETED")
         except TimeoutError:
             return []
         except Exception as exc:  # dask raises its own TimeoutError subclass on some versions

@@ -124,6 +124,8 @@ def _positive(name):
 @click.option("--cluster", metavar="ADDRESS", default=None,
               help="Run on Dask: tcp://HOST:PORT of a running scheduler, or local:N for a "
                    "loopback cluster of N processes (needs ldpcmarg[dask]).")
+@click.option("--cluster-timeout", type=float, default=10.0, show_default=True,
+              metavar="SECONDS", help="Give up connecting to the --cluster scheduler after this.")
 @click.option("--chunk-frames", type=int, default=None, callback=_positive("--chunk-frames"),
               help="Frames per work chunk [default: about 2^19 bits]; part of the run identity.")
 @click.option("--random-codewords", is_flag=True,
@@ -140,8 +142,8 @@ def _positive(name):
               help="Write a BER/FER figure (.png, .svg or .pdf).")
 @click.option("-q", "--quiet", is_flag=True, help="No progress lines.")
 def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_frames,
-            time_budget, fer_floor, seed, workers, cluster, chunk_frames, random_codewords,
-            confidence, store_path, json_path, csv_path, plot_path, quiet):
+            time_budget, fer_floor, seed, workers, cluster, cluster_timeout, chunk_frames,
+            random_codewords, confidence, store_path, json_path, csv_path, plot_path, quiet):
     """Simulate BER and FER of CODE (a shipped name or a matrix file) over an SNR grid.
 
     \b
@@ -207,7 +209,9 @@ def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_f
     if cluster:
         from ..executors import DaskExecutor
 
-        executor = DaskExecutor(cluster)
+        if not cluster_timeout > 0:
+            raise InputError(f"--cluster-timeout must be > 0; got {cluster_timeout}.")
+        executor = DaskExecutor(cluster, connect_timeout=cluster_timeout)
     store = None
     try:
         if store_path is not None:
