@@ -334,7 +334,8 @@ def _labels(decs: list[Decoder]) -> list[str]:
 def compare_decoders(code, decoders, *, snr, snr_unit: str = "ebn0", frames: int = 100,
                      seed: int = 0, reference: str = "auto", exact_method: str = "auto",
                      num_bins: int = 12, binning: str = "log", min_prob: float = 1e-6,
-                     warmup: bool = True, progress=None) -> CompareResult:
+                     warmup: bool = True, progress=None,
+                     labels: list[str] | None = None) -> CompareResult:
     """Run several decoders on the same frames and measure them.
 
     Parameters
@@ -367,6 +368,9 @@ def compare_decoders(code, decoders, *, snr, snr_unit: str = "ebn0", frames: int
         compilation out of the times).
     progress : callable, optional
         Called as ``progress(snr, label)`` before each decoder runs.
+    labels : list of str, optional
+        Names for the decoders in tables, JSON and legends (default: each
+        decoder's canonical spec, ``#2``, ``#3`` appended to repeats).
 
     Returns
     -------
@@ -396,7 +400,12 @@ def compare_decoders(code, decoders, *, snr, snr_unit: str = "ebn0", frames: int
             decs.append(d)
         else:
             decs.append(make_decoder(d, code))
-    labels = _labels(decs)
+    if labels is None:
+        labels = _labels(decs)
+    else:
+        labels = [str(x) for x in labels]
+        if len(labels) != len(decs) or len(set(labels)) != len(labels):
+            raise InputError("labels must give one distinct name per decoder.")
     ref_dec = None
     ref_kind = reference
     if reference not in ("auto", "exact", "none"):

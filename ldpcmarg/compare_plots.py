@@ -71,7 +71,7 @@ def _snr_of(result, snr):
     raise InputError(f"No SNR point {snr!r} in the result; points: {result.snr_points}.")
 
 
-def plot_reliability(result, snr=None, ax=None, *, decoders=None):
+def plot_reliability(result, snr=None, ax=None, *, decoders=None, legend: bool = True):
     """Reliability diagram at one SNR point: observed against stated bit-error probability.
 
     Parameters
@@ -82,6 +82,8 @@ def plot_reliability(result, snr=None, ax=None, *, decoders=None):
     ax : matplotlib Axes, optional
     decoders : list of str, optional
         Labels to draw (default: every decoder with a soft output).
+    legend : bool
+        Draw a legend on the axes (turn off to build a shared legend).
 
     Returns
     -------
@@ -121,15 +123,24 @@ def plot_reliability(result, snr=None, ax=None, *, decoders=None):
                     alpha=0.35)
         lo_all.extend(pred[pred > 0].tolist())
         hi_all.extend(hi.tolist())
-    lo_v = max(min(lo_all) if lo_all else 1e-6, 1e-12)
-    grid = np.array([lo_v * 0.5, 0.5])
+    # The lowest bin collects everything below the first log edge; its mean can
+    # be astronomically small, so the axes start one decade below that edge.
+    edges = [r.calibration.bin_edges for r in result.rows
+             if r.snr == s and r.calibration is not None]
+    first = min((e[1] for e in edges if e[0] == 0.0 and len(e) > 2 and e[1] < 0.05),
+                default=None)
+    lo_v = first / 10 if first is not None else max(min(lo_all) if lo_all else 1e-6, 1e-12) / 2
+    grid = np.array([lo_v, 0.5])
     ax.plot(grid, grid, color="0.5", lw=0.8, ls="--", label="perfect calibration")
     ax.set_xscale("log")
     ax.set_yscale("log")
+    ax.set_xlim(lo_v, 0.7)
+    ax.set_ylim(bottom=lo_v)
     ax.set_xlabel("stated bit-error probability 1/(1+e^|L|)")
     ax.set_ylabel("observed bit-error frequency")
     ax.set_title(f"Reliability, {result.code.get('name')}, {_snr_text(result, s)}")
-    ax.legend(fontsize=7)
+    if legend:
+        ax.legend(fontsize=7)
     return ax
 
 
@@ -164,7 +175,8 @@ def _per_decoder(result, metric):
         yield label, xs, ys
 
 
-def plot_posterior_error(result, metric: str = "mean_abs_error", ax=None):
+def plot_posterior_error(result, metric: str = "mean_abs_error", ax=None, *,
+                         legend: bool = True):
     """Posterior error (against the reference) versus SNR, one line per decoder (log y).
 
     ``metric`` is ``"mean_abs_error"``, ``"max_abs_error"`` or ``"mean_kl_bits"``.
@@ -182,11 +194,12 @@ def plot_posterior_error(result, metric: str = "mean_abs_error", ax=None):
     ax.set_xlabel(result.snr_label)
     ax.set_ylabel(_METRIC_LABELS[metric])
     ax.set_title(f"Posterior error against {result.reference}, {result.code.get('name')}")
-    ax.legend(fontsize=7)
+    if legend:
+        ax.legend(fontsize=7)
     return ax
 
 
-def plot_calibration_error(result, ax=None):
+def plot_calibration_error(result, ax=None, *, legend: bool = True):
     """Expected calibration error versus SNR, one line per soft-output decoder (log y)."""
     fig, ax = _ax(ax)
     for label, xs, ys in _per_decoder(result, "ece"):
@@ -198,11 +211,12 @@ def plot_calibration_error(result, ax=None):
     ax.set_xlabel(result.snr_label)
     ax.set_ylabel("expected calibration error")
     ax.set_title(f"Calibration against transmitted bits, {result.code.get('name')}")
-    ax.legend(fontsize=7)
+    if legend:
+        ax.legend(fontsize=7)
     return ax
 
 
-def plot_error_rates(result, ax=None):
+def plot_error_rates(result, ax=None, *, legend: bool = True):
     """BER (solid) and FER (dashed) versus SNR, log y."""
     fig, ax = _ax(ax)
     for label in result.decoders:
@@ -216,11 +230,13 @@ def plot_error_rates(result, ax=None):
     ax.set_xlabel(result.snr_label)
     ax.set_ylabel("error rate (BER solid, FER dashed)")
     ax.set_title(f"Error rates, {result.code.get('name')}, {result.frames} frames per point")
-    ax.legend(fontsize=7)
+    if legend:
+        ax.legend(fontsize=7)
     return ax
 
 
-def plot_time_vs_accuracy(result, metric: str = "mean_abs_error", ax=None):
+def plot_time_vs_accuracy(result, metric: str = "mean_abs_error", ax=None, *,
+                          legend: bool = True):
     """Time per frame (ms, log x) against posterior error (log y); one marker per (decoder, SNR)."""
     if metric not in _METRIC_LABELS:
         raise InputError(f"Unknown accuracy metric {metric!r}.")
@@ -243,7 +259,8 @@ def plot_time_vs_accuracy(result, metric: str = "mean_abs_error", ax=None):
     ax.set_xlabel("time per frame (ms, wall clock)")
     ax.set_ylabel(_METRIC_LABELS[metric])
     ax.set_title(f"Time against accuracy (labels: {result.snr_label})", fontsize=9)
-    ax.legend(fontsize=7)
+    if legend:
+        ax.legend(fontsize=7)
     return ax
 
 
