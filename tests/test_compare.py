@@ -232,3 +232,32 @@ def test_cli_compare_errors(tmp_path, hamming74, capsys, extra, match):
     err = capsys.readouterr().err.strip().splitlines()
     assert exc.value.code == 2 and len(err) == 1 and err[0].startswith("Error: ")
     assert match in err[0]
+
+
+def test_custom_labels(hamming74):
+    res = compare_decoders(hamming74, [SP, "min-sum:early_stop=false"], snr=[2.0], frames=5,
+                           labels=["BP", "MS"])
+    assert res.decoders == ["BP", "MS"] and [r.label for r in res.rows] == ["BP", "MS"]
+    assert res.rows[0].decoder == make_decoder(SP, hamming74).spec
+    with pytest.raises(InputError, match="distinct"):
+        compare_decoders(hamming74, [SP, SP], snr=[2.0], frames=2, labels=["a", "a"])
+
+
+@pytest.mark.slow
+def test_soft_output_study_smoke(tmp_path):
+    # The study's --quick mode with 2 frames per point, written to a scratch folder.
+    from pathlib import Path
+
+    script = Path(__file__).resolve().parents[1] / "experiments" / "soft_output_study.py"
+    proc = subprocess.run([sys.executable, str(script), "--quick", "--frames", "2",
+                           "--out", str(tmp_path)], capture_output=True, text=True, timeout=600)
+    assert proc.returncode == 0, proc.stderr[-2000:]
+    for name in ("table.csv", "table.md", "results.json", "soft_output.png"):
+        assert (tmp_path / name).stat().st_size > 0
+    import csv
+
+    with open(tmp_path / "table.csv") as fh:
+        rows = list(csv.DictReader(fh))
+    assert {r["code"] for r in rows} == {"golay-24-12", "peg-36-18-3"}
+    assert {"SP", "MS"} <= {r["decoder"] for r in rows}
+    assert all(r["reference"].startswith("exact") for r in rows)
