@@ -531,3 +531,25 @@ def test_accept_fraction_gives_multiplicative_oracle(seed):
         check_in_polytope(code, sol.bits, sol.local)
     with pytest.raises(InputError):
         oracle.solve(g, h, accept_fraction=0.5)
+
+
+def test_flatten_removes_per_check_affine_costs(seed):
+    # costs that are affine in the pattern bits per check are flattened exactly:
+    # then D(mu) = sum_c a_c + sum_i min(0, r_i) is the LP optimum (no check term left)
+    rng = np.random.default_rng(1200 + seed)
+    code = random_regular_code(24, 3, 6, 12)
+    lc = code.local_codewords()
+    a = rng.normal(size=code.m)
+    beta = rng.normal(size=code.num_edges)
+    h = np.empty(lc.count)
+    for c in range(code.m):
+        d = int(code.check_degrees[c])
+        P = lc.patterns(c, d).astype(float)
+        b_c = beta[code.check_ptr[c]: code.check_ptr[c + 1]]
+        h[lc.offset[c]: lc.offset[c + 1]] = a[c] + P @ b_c
+    g = rng.normal(size=code.n)
+    da = DualAscent(code, lc)
+    da.flatten(h)
+    np.testing.assert_allclose(da.mu, -beta, atol=1e-9)
+    opt, _ = lp_optimum(code, g, h)
+    assert da.run(g, h, max_sweeps=0).bound <= opt + 1e-9

@@ -127,7 +127,23 @@ def _bound_kernel(offset, theta, r, argmin):
 
 
 @nb.njit(**NUMBA_OPTS)
-def _side_mins(theta, bits, o, K, bp, d, t, temp):
+def _masks_kernel(check_ptr, offset, bit_ptr, bits, masks):
+    """Bit t of masks[S] is bit t of local codeword S (checks of degree <= 62)."""
+    m = check_ptr.size - 1
+    for c in range(m):
+        d = check_ptr[c + 1] - check_ptr[c]
+        o = offset[c]
+        for j in range(offset[c + 1] - o):
+            base = bit_ptr[c] + j * d
+            v = 0
+            for t in range(d):
+                if bits[base + t]:
+                    v |= 1 << t
+            masks[o + j] = v
+
+
+@nb.njit(**NUMBA_OPTS)
+def _side_mins(theta, masks, o, K, t, temp):
     """(Soft-)minimum of theta over local codewords of one check with bit t = 1 and = 0.
 
     ``temp == 0`` gives the hard minima; ``temp > 0`` the soft minima
@@ -137,27 +153,28 @@ def _side_mins(theta, bits, o, K, bp, d, t, temp):
     m0 = np.inf
     for j in range(K):
         v = theta[o + j]
-        if bits[bp + j * d + t]:
+        if (masks[o + j] >> t) & 1:
             if v < m1:
                 m1 = v
         elif v < m0:
             m0 = v
     if temp > 0.0:
+        inv = 1.0 / temp
         s1 = 0.0
         s0 = 0.0
         for j in range(K):
             v = theta[o + j]
-            if bits[bp + j * d + t]:
-                s1 += np.exp(-(v - m1) / temp)
+            if (masks[o + j] >> t) & 1:
+                s1 += np.exp((m1 - v) * inv)
             else:
-                s0 += np.exp(-(v - m0) / temp)
+                s0 += np.exp((m0 - v) * inv)
         m1 -= temp * np.log(s1)
         m0 -= temp * np.log(s0)
     return m1, m0
 
 
 @nb.njit(**NUMBA_OPTS)
-def _star_sweep_kernel(check_ptr, edge_check, var_ptr, var_edges, offset, bit_ptr, bits,
+def _star_sweep_kernel(check_ptr, edge_check, var_ptr, var_edges, offset, masks,
                        g, mu, theta, r, order, temp, delta):
     """One Gauss–Seidel sweep of star updates around the bits in ``order``.
 
@@ -165,6 +182,7 @@ def _star_sweep_kernel(check_ptr, edge_check, var_ptr, var_edges, offset, bit_pt
     of check c on bit i with mu_e removed; b = g_i + sum_e delta_e; the block
     optimum shares b equally among the bit and its checks:
     mu_e <- b / (d_i + 1) - delta_e. ``theta`` and ``r`` are kept in step.
+    ``masks`` are the local codewords as bit masks (``_masks_kernel``);
     ``delta`` is scratch of length >= max bit degree.
     """
     for q in range(order.size):
@@ -178,11 +196,8 @@ def _star_sweep_kernel(check_ptr, edge_check, var_ptr, var_edges, offset, bit_pt
         for k in range(di):
             e = var_edges[a + k]
             c = edge_check[e]
-            e0 = check_ptr[c]
-            d = check_ptr[c + 1] - e0
             o = offset[c]
-            K = offset[c + 1] - o
-            m1, m0 = _side_mins(theta, bits, o, K, bit_ptr[c], d, e - e0, temp)
+            m1, m0 = _side_mins(theta, masks, o, offset[c + 1] - o, e - check_ptr[c], temp)
             dk = (m1 - mu[e]) - m0
             delta[k] = dk
             b += dk
@@ -193,15 +208,11 @@ def _star_sweep_kernel(check_ptr, edge_check, var_ptr, var_edges, offset, bit_pt
             dm = new - mu[e]
             if dm != 0.0:
                 c = edge_check[e]
-                e0 = check_ptr[c]
-                d = check_ptr[c + 1] - e0
-                t = e - e0
+                t = e - check_ptr[c]
                 o = offset[c]
-                K = offset[c + 1] - o
-                bp = bit_ptr[c]
-                for j in range(K):
-                    if bits[bp + j * d + t]:
-                        theta[o + j] += dm
+                for j in range(o, offset[c + 1]):
+                    if (masks[j] >> t) & 1:
+                        theta[j] += dm
                 mu[e] = new
         r[i] = share
 
@@ -318,6 +329,10 @@ class _Graph:
                 f"this code has {self.m}."
             )
         self.max_var_degree = int(np.max(np.diff(self.var_ptr))) if self.n else 0
+        if self.m and int(np.max(np.diff(self.check_ptr))) > 62:
+            raise InputError("Checks of degree above 62 are not supported by the dual kernels.")
+        self.masks = np.zeros(self.K, dtype=np.int64)
+        _masks_kernel(self.check_ptr, self.offset, self.bit_ptr, self.bits, self.masks)
 
     def costs(self, g, h):
         g = _as_vector(g, self.n, "bit costs")
@@ -557,6 +572,31 @@ class DualAscentResult:
     history: list = field(default_factory=list)
 
 
+def _flatten_plan(gr: _Graph):
+    """Group checks by local-codeword pattern block; one pseudo-inverse per group.
+
+    Returns a list of ``(checks, pinv (d+1, K_d), cols (#checks, K_d), edges (#checks, d))``.
+    """
+    groups: dict = {}
+    for c in range(gr.m):
+        o, o2 = int(gr.offset[c]), int(gr.offset[c + 1])
+        d = int(gr.check_ptr[c + 1] - gr.check_ptr[c])
+        if d == 0:
+            continue
+        pats = gr.bits[gr.bit_ptr[c]: gr.bit_ptr[c + 1]].reshape(o2 - o, d)
+        key = (d, pats.tobytes())
+        groups.setdefault(key, (pats, []))[1].append(c)
+    plan = []
+    for (d, _), (pats, checks) in groups.items():
+        X = np.hstack([np.ones((pats.shape[0], 1)), pats.astype(np.float64)])
+        pinv = np.linalg.pinv(X)
+        checks = np.asarray(checks, dtype=np.int64)
+        cols = gr.offset[checks][:, None] + np.arange(pats.shape[0])[None, :]
+        edges = gr.check_ptr[checks][:, None] + np.arange(d)[None, :]
+        plan.append((checks, pinv, cols, edges))
+    return plan
+
+
 class DualAscent:
     """Block-coordinate ascent on the Lagrangian dual, keeping ``mu`` between calls.
 
@@ -612,10 +652,36 @@ class DualAscent:
         self._order = np.arange(self._gr.n, dtype=np.int64)
         self._delta = np.zeros(max(self._gr.max_var_degree, 1), dtype=np.float64)
         self.last = None  # (bound, theta, r, argmin) at the kept mu for the last costs
+        self._fit = None
 
     def reset(self) -> None:
         """Zero the multipliers (cold start)."""
         self.mu[:] = 0.0
+
+    def flatten(self, h) -> None:
+        """Set ``mu`` by a least-squares fit that makes each check's costs nearly constant.
+
+        Per check, fit ``h_c(S) ≈ a_c + sum_{i in S} beta_ic`` over its local
+        codewords and set ``mu_ic = -beta_ic``, so that ``h_c(S) + sum_{i in S} mu_ic``
+        is as flat as a least-squares fit allows. Near a stationary point of a
+        free energy whose check terms are ``rho_c (ln tau_c(S) + 1)`` with
+        ``tau_c`` of product form on the even-weight patterns (the form of
+        (reweighted) sum-product check beliefs), this is close to the dual
+        optimum, so a new frame's dual ascent starts near its end point. Any
+        ``mu`` gives a valid bound; this only chooses a good start.
+
+        Parameters
+        ----------
+        h : ndarray of shape (K,), float
+            Local-codeword costs.
+        """
+        gr = self._gr
+        h = _as_vector(h, gr.K, "local-codeword costs")
+        if self._fit is None:
+            self._fit = _flatten_plan(gr)
+        for _checks, pinv, cols, edges in self._fit:
+            coef = h[cols] @ pinv.T  # (checks, d + 1)
+            self.mu[edges] = -coef[:, 1:]
 
     def run(self, g, h, *, max_sweeps: int = 200, tol: float = 1e-9, target: float | None = None,
             record: bool = False) -> DualAscentResult:
@@ -654,8 +720,7 @@ class DualAscent:
         prev = bound
         while sweeps < max_sweeps and not (target is not None and best >= target):
             _star_sweep_kernel(gr.check_ptr, gr.edge_check, gr.var_ptr, gr.var_edges, gr.offset,
-                               gr.bit_ptr, gr.bits, g, mu, theta, r, self._order, temp,
-                               self._delta)
+                               gr.masks, g, mu, theta, r, self._order, temp, self._delta)
             sweeps += 1
             bound = _bound_kernel(gr.offset, theta, r, argmin)
             if record:
