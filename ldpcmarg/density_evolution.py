@@ -1303,13 +1303,22 @@ def biawgn_capacity(sigma: float) -> float:
 def biawgn_shannon_sigma(rate: float) -> float:
     """Noise std ``sigma`` at which the BI-AWGN capacity equals ``rate`` (0 < rate < 1).
 
-    Uses :func:`ldpcmarg.capacity` if that module offers a suitable function,
-    else :func:`biawgn_capacity` with ``scipy.optimize.brentq``.
+    Uses ``ldpcmarg.capacity.biawgn_shannon_limit_ebn0_db`` when that module is
+    present, else :func:`biawgn_capacity` with ``scipy.optimize.brentq``.
     """
-    from scipy.optimize import brentq
-
     if not 0.0 < rate < 1.0:
         raise InputError(f"The rate must be in (0, 1) for a Shannon limit; got {rate!r}.")
+    try:
+        from .capacity import biawgn_shannon_limit_ebn0_db
+    except ImportError:
+        return _shannon_sigma_own(rate)
+    ebn0 = biawgn_shannon_limit_ebn0_db(rate)
+    return math.sqrt(1.0 / (2.0 * rate * 10.0 ** (ebn0 / 10.0)))
+
+
+def _shannon_sigma_own(rate: float) -> float:
+    from scipy.optimize import brentq
+
     return float(brentq(lambda s: biawgn_capacity(s) - rate, 1e-3, 1e3, xtol=1e-12, rtol=1e-13))
 
 
