@@ -371,3 +371,13 @@ def test_lp_decoder_time_limit_is_flagged():
     assert not res.info["proved_optimal"].any() and not res.info["ml_certificate"].any()
     assert np.isnan(res.info["pseudo_codeword"]).all()
     assert np.array_equal(res.bits, (llr < 0).astype(np.uint8))
+
+
+def test_oracle_pickles_after_use():
+    code = ParityCheckCode(HAMMING_7_4)
+    lp = LocalPolytopeLP(code)
+    g = np.array([1.0, -2.0, 0.5, 0.3, -0.1, 0.7, 1.1])
+    first = lp.solve(g)
+    clone = pickle.loads(pickle.dumps(lp))
+    again = clone.solve(g)  # cold on the other side, same optimum
+    assert again.optimal and again.objective == pytest.approx(first.objective, abs=1e-12)

@@ -340,6 +340,12 @@ class LocalPolytopeLP:
             raise InputError(f"LP costs must be finite; {where} has {cost[bad]!r}.")
         return cost
 
+    def __getstate__(self):
+        # a Highs object does not pickle: ship the model data, rebuild HiGHS lazily
+        state = self.__dict__.copy()
+        state.update(_h=None, _has_basis=False, _last_optimal=False)
+        return state
+
     def duals(self) -> tuple[np.ndarray, np.ndarray]:
         """Row duals of the last solve, which must have been an optimal LP solve.
 
@@ -534,6 +540,11 @@ class ParityMIP:
         self.m = int(code.m)
         self.threads = int(threads)
         self._h = None
+
+    def __getstate__(self):
+        state = self.__dict__.copy()
+        state["_h"] = None
+        return state
 
     def _ensure_model(self):
         if self._h is not None:
