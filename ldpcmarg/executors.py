@@ -139,11 +139,30 @@ _WORKER_FUNC = None
 _WORKER_CTX = None
 
 
+def _one_numba_thread() -> None:
+    """Run numba's frame-parallel loops on one thread in this worker thread.
+
+    With one worker per core, letting every worker also start a numba thread
+    per core would oversubscribe the machine. (The in-process executor keeps
+    numba's default, so ``workers=1`` still uses every core.) A decoder spec
+    with an explicit ``threads=`` option overrides this inside ``decode``.
+    """
+    import sys
+
+    nb = sys.modules.get("numba")
+    if nb is not None:
+        try:
+            nb.set_num_threads(1)
+        except Exception:  # pragma: no cover - numba without a threading layer
+            pass
+
+
 def _init_worker(func, context):
     global _WORKER_FUNC, _WORKER_CTX
     # The coordinator handles Ctrl-C and stops the pool; workers ignore SIGINT.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     _WORKER_FUNC, _WORKER_CTX = func, context
+    _one_numba_thread()
 
 
 def _run_in_worker(task):
@@ -214,6 +233,7 @@ class ProcessExecutor(Executor):
 
 # ---------------------------------------------------------------- dask
 def _dask_call(func, context, task):
+    _one_numba_thread()  # numba's thread count is per calling thread
     return func(context, task)
 
 
