@@ -1,0 +1,116 @@
+/*
+ * Straightforward scalar flooding decoders for binary LDPC codes, used only as
+ * a speed reference for the numba kernels of ldpcmarg (see
+ * experiments/bench_message_passing.py, which compiles this file with
+ * gcc -O3 -march=native and calls it through ctypes on the same LLRs).
+ *
+ * Conventions: LLR = ln P(x=0)/P(x=1); edges in check-major (CSR) order;
+ * var_edges lists the edges of every bit (variable-major order).
+ * One iteration = check pass + bit pass; before each iteration the hard
+ * decision is tested against the checks (stop at the first failing check)
+ * and the frame stops when it is a codeword.
+ *
+ * mode 0: sum-product, c2v = 2 atanh(prod tanh(v/2)) with prefix/suffix
+ *         products (product clamped to +-(1 - 2^-53));
+ * mode 1: normalised min-sum, c2v = alpha * prod sign * min |v|.
+ */
+#include <math.h>
+#include <stdint.h>
+#include <stdlib.h>
+
+static int hard_ok(int m, const int64_t *check_ptr, const int64_t *edge_var, const double *L)
+{
+    for (int c = 0; c < m; c++) {
+        int par = 0;
+        for (int64_t e = check_ptr[c]; e < check_ptr[c + 1]; e++)
+            par ^= (L[edge_var[e]] < 0.0);
+        if (par)
+            return 0;
+    }
+    return 1;
+}
+
+int decode_batch(int F, int n, int m, const int64_t *check_ptr, const int64_t *edge_var,
+                 const int64_t *var_ptr, const int64_t *var_edges, const double *llr,
+                 int max_iter, int mode, double alpha, double *post, int64_t *iters,
+                 uint8_t *valid)
+{
+    const int64_t E = check_ptr[m];
+    int dmax = 0;
+    for (int c = 0; c < m; c++)
+        if (check_ptr[c + 1] - check_ptr[c] > dmax)
+            dmax = (int)(check_ptr[c + 1] - check_ptr[c]);
+    double *c2v = malloc(sizeof(double) * E);
+    double *v2c = malloc(sizeof(double) * E);
+    double *t = malloc(sizeof(double) * (dmax + 1));
+    double *pre = malloc(sizeof(double) * (dmax + 1));
+    if (!c2v || !v2c || !t || !pre)
+        return -1;
+    const double pmax = 1.0 - 0x1p-53;
+    for (int f = 0; f < F; f++) {
+        const double *y = llr + (int64_t)f * n;
+        double *L = post + (int64_t)f * n;
+        for (int i = 0; i < n; i++)
+            L[i] = y[i];
+        for (int64_t e = 0; e < E; e++) {
+            c2v[e] = 0.0;
+            v2c[e] = y[edge_var[e]];
+        }
+        int it = 0, ok = 0;
+        for (;;) {
+            ok = hard_ok(m, check_ptr, edge_var, L);
+            if (ok || it >= max_iter)
+                break;
+            /* check pass */
+            for (int c = 0; c < m; c++) {
+                const int64_t a = check_ptr[c];
+                const int d = (int)(check_ptr[c + 1] - a);
+                if (mode == 0) {
+                    double acc = 1.0;
+                    for (int k = 0; k < d; k++) {
+                        t[k] = tanh(0.5 * v2c[a + k]);
+                        pre[k] = acc;
+                        acc *= t[k];
+                    }
+                    acc = 1.0;
+                    for (int k = d - 1; k >= 0; k--) {
+                        double p = pre[k] * acc;
+                        acc *= t[k];
+                        if (p > pmax) p = pmax;
+                        if (p < -pmax) p = -pmax;
+                        c2v[a + k] = 2.0 * atanh(p);
+                    }
+                } else {
+                    double min1 = INFINITY, min2 = INFINITY;
+                    int idx = -1, neg = 0;
+                    for (int k = 0; k < d; k++) {
+                        double v = v2c[a + k];
+                        double x = fabs(v);
+                        neg ^= (v < 0.0);
+                        if (x < min1) { min2 = min1; min1 = x; idx = k; }
+                        else if (x < min2) { min2 = x; }
+                    }
+                    for (int k = 0; k < d; k++) {
+                        double mag = alpha * (k == idx ? min2 : min1);
+                        int s = neg ^ (v2c[a + k] < 0.0);
+                        c2v[a + k] = s ? -mag : mag;
+                    }
+                }
+            }
+            /* bit pass */
+            for (int i = 0; i < n; i++) {
+                double s = y[i];
+                for (int64_t q = var_ptr[i]; q < var_ptr[i + 1]; q++)
+                    s += c2v[var_edges[q]];
+                L[i] = s;
+                for (int64_t q = var_ptr[i]; q < var_ptr[i + 1]; q++)
+                    v2c[var_edges[q]] = s - c2v[var_edges[q]];
+            }
+            it++;
+        }
+        iters[f] = it;
+        valid[f] = (uint8_t)ok;
+    }
+    free(c2v); free(v2c); free(t); free(pre);
+    return 0;
+}
