@@ -131,7 +131,14 @@ def random_codewords(code, frames: int, rng: np.random.Generator) -> np.ndarray:
 # ------------------------------------------------------------------ results
 @dataclass
 class DecoderPoint:
-    """Results of one decoder at one SNR point (``None`` marks "n/a")."""
+    """Results of one decoder at one SNR point (``None`` marks "n/a").
+
+    ``decoder`` is the canonical spec, ``label`` the name used in tables and
+    legends, ``options`` every validated option of the decoder. Error rates
+    count all ``n`` bits; ``mean_kl_bits`` is ``KL(reference || decoder)``
+    per bit in bits; ``mutual_information`` is in bits per bit;
+    ``time_per_frame_s`` is wall-clock seconds.
+    """
 
     decoder: str
     label: str
@@ -155,13 +162,14 @@ class DecoderPoint:
     time_per_frame_s: float
     info_summary: dict[str, float] = field(default_factory=dict)
     soft: bool = True
+    options: dict[str, Any] = field(default_factory=dict)
 
     def to_dict(self) -> dict:
         d = {k: getattr(self, k) for k in (
             "decoder", "label", "snr", "frames", "n", "bit_errors", "frame_errors", "ber",
             "fer", "valid_fraction", "mean_abs_error", "max_abs_error", "mean_kl_bits", "ece",
             "mutual_information", "mi_stderr", "mean_iterations", "max_iterations",
-            "time_per_frame_s", "info_summary", "soft")}
+            "time_per_frame_s", "info_summary", "soft", "options")}
         d["calibration"] = self.calibration.to_dict() if self.calibration is not None else None
         return _json_clean(d)
 
@@ -322,10 +330,28 @@ def _info_summary(info: dict[str, Any], F: int) -> dict[str, float]:
     return out
 
 
-def _labels(decs: list[Decoder]) -> list[str]:
+def json_options(options: dict[str, Any]) -> dict[str, Any]:
+    """A decoder's validated options in JSON-ready form (arrays as lists, others as text)."""
+    out = {}
+    for k, v in options.items():
+        if v is None or isinstance(v, bool | int | float | str):
+            out[k] = v
+        elif isinstance(v, np.generic):
+            out[k] = v.item()
+        elif isinstance(v, np.ndarray) and v.size <= 10_000:
+            out[k] = v.tolist()
+        else:
+            out[k] = str(v)
+    return _json_clean(out)
+
+
+def _labels(decs: list[Decoder], given: list[str | None]) -> list[str]:
+    # A spec string the caller wrote names the decoder as asked (options whose
+    # values are not plain, such as array weights, can be missing from the
+    # canonical spec); a built decoder is named by its canonical spec.
     labels, seen = [], {}
-    for d in decs:
-        s = d.spec
+    for d, g in zip(decs, given, strict=True):
+        s = g.strip() if g else d.spec
         seen[s] = seen.get(s, 0) + 1
         labels.append(s if seen[s] == 1 else f"{s} #{seen[s]}")
     return labels
@@ -401,7 +427,7 @@ def compare_decoders(code, decoders, *, snr, snr_unit: str = "ebn0", frames: int
         else:
             decs.append(make_decoder(d, code))
     if labels is None:
-        labels = _labels(decs)
+        labels = _labels(decs, [d if isinstance(d, str) else None for d in decoders])
     else:
         labels = [str(x) for x in labels]
         if len(labels) != len(decs) or len(set(labels)) != len(labels):
@@ -461,8 +487,10 @@ def compare_decoders(code, decoders, *, snr, snr_unit: str = "ebn0", frames: int
             except LdpcmargError as exc:
                 raise type(exc)(f"{label}: {exc}") from exc
             dt = (time.perf_counter() - t0) / frames
-            rows.append(_measure(label, d.spec, s, cw, res, ref_p1, ref_llr, dt,
-                                 num_bins, binning, min_prob))
+            row = _measure(label, d.spec, s, cw, res, ref_p1, ref_llr, dt, num_bins, binning,
+                           min_prob)
+            row.options = json_options(d.options)
+            rows.append(row)
     if ref_kind == "none" and not ref_note:
         ref_note = "no reference requested"
     return CompareResult(

@@ -485,6 +485,7 @@ def compute_posteriors(code, decoder="sum-product", *, llr=None, outputs=None,
         "version": _FORMAT_VERSION,
         "code": code.summary(),
         "decoder": dec.spec,
+        "decoder_options": _json_options(dec.options),
         "channel": channel.to_dict() if channel is not None else None,
         "input": input_kind,
         "frames": int(F),
@@ -499,6 +500,23 @@ def compute_posteriors(code, decoder="sum-product", *, llr=None, outputs=None,
         info=info,
         meta=meta,
     )
+
+
+def _json_options(options: dict[str, Any]) -> dict[str, Any]:
+    out: dict[str, Any] = {}
+    for k, v in options.items():
+        if isinstance(v, np.generic):
+            v = v.item()
+        if v is None or isinstance(v, bool | int | str):
+            out[k] = v
+        elif isinstance(v, float):
+            out[k] = v if math.isfinite(v) else str(v)
+        elif isinstance(v, np.ndarray) and v.dtype.kind in "biuf" and v.size <= 10_000:
+            out[k] = [x if not isinstance(x, float) or math.isfinite(x) else str(x)
+                      for x in v.ravel().tolist()]
+        else:
+            out[k] = str(v)
+    return out
 
 
 # -------------------------------------------------------------------- output

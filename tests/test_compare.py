@@ -239,6 +239,11 @@ def test_custom_labels(hamming74):
                            labels=["BP", "MS"])
     assert res.decoders == ["BP", "MS"] and [r.label for r in res.rows] == ["BP", "MS"]
     assert res.rows[0].decoder == make_decoder(SP, hamming74).spec
+    # default labels: the spec strings as written; options recorded in full
+    plain = compare_decoders(hamming74, ["min-sum:alpha=0.8,early_stop=false"], snr=[2.0],
+                             frames=2)
+    assert plain.decoders == ["min-sum:alpha=0.8,early_stop=false"]
+    assert plain.rows[0].options["alpha"] == 0.8 and plain.rows[0].options["max_iter"] == 50
     with pytest.raises(InputError, match="distinct"):
         compare_decoders(hamming74, [SP, SP], snr=[2.0], frames=2, labels=["a", "a"])
 

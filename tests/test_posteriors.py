@@ -106,6 +106,9 @@ def test_round_trip_every_format(tmp_path, hamming74, fmt):
         assert back.info[k].dtype == v.dtype and back.info[k].shape == v.shape, k
         assert np.array_equal(back.info[k], v, equal_nan=v.dtype.kind == "f"), k
     assert back.meta == res.meta
+    # every option of the decoder is recorded, not only those in the short spec
+    assert back.meta["decoder_options"]["max_iter"] == 60
+    assert back.meta["decoder_options"]["early_stop"] is False
     # the sidecar / meta is standard JSON (no NaN tokens)
     if fmt != "npz":
         json.loads(output_paths(path)["sidecar"].read_text(),

@@ -47,7 +47,8 @@ def parse_points(text: str, what: str) -> list[float]:
 @click.option("--bec", help="BEC with these erasure probabilities.")
 @click.option("--frames", type=click.IntRange(min=1), default=200, show_default=True,
               help="Frames per point (the same frames for every decoder).")
-@click.option("--seed", type=click.IntRange(min=0), default=0, show_default=True)
+@click.option("--seed", type=click.IntRange(min=0), default=0, show_default=True,
+              help="Seed of the frames (codewords and noise); point j uses (seed, j).")
 @click.option("--reference", default="auto", show_default=True,
               help="Posterior reference: auto (exact when the code is small enough), exact, "
                    "none, or a decoder spec.")
@@ -84,6 +85,10 @@ def command(code, decoders, ebn0, esn0, sigma, bsc, bec, frames, seed, reference
     points = parse_points(text, {"p": "BSC", "epsilon": "BEC"}.get(unit, unit))
     if json_path and json_path != "-" and Path(json_path).exists() and not force:
         raise InputError(f"Output file {json_path} exists; pass --force to overwrite.")
+    if plot_dir and not force:
+        old = sorted(Path(plot_dir).glob("compare_*.png"))
+        if old:
+            raise InputError(f"Figure {old[0]} exists; pass --force to overwrite.")
     the_code = load_code_arg(code)
 
     def progress(snr, label):

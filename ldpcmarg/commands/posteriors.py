@@ -87,7 +87,7 @@ def command(code, input_path, output, decoder, ebn0, esn0, sigma, bsc, bec, key,
         res = compute_posteriors(the_code, decoder, outputs=data, channel=spec)
     written = write_posteriors(res, output, fmt=fmt, force=force)
     summary = res.summary()
-    summary["decoder"] = res.meta["decoder"]
+    summary["decoder"] = decoder
     summary["files"] = [str(p) for p in written]
     if as_json:
         click.echo(json.dumps(summary, indent=2))
