@@ -584,6 +584,11 @@ class FWFrameResult:
         and ended at an integral one: a Bethe trap, not marginals),
         ``"max_iter"``, ``"time_limit"``, ``"stalled"`` (line search made no
         progress) or ``"oracle_failed"``.
+    eps : float
+        Final contraction (variant "contracted").
+    certified_gap : float or None
+        Lagrangian certificate ``<grad F(tau), tau> - D(mu) >= F(tau) - F*``
+        (convex F), when an oracle or the final dual ascent provided one.
     trace : dict of str to ndarray, or None
         Per iteration: ``objective``, ``gap``, ``step``, ``oracle_seconds``, ``kind``
         (0 FW step, 1 away step, 2 pairwise step, 3 drop step).
@@ -601,6 +606,7 @@ class FWFrameResult:
     status: str
     eps: float = 0.0
     trace: dict | None = field(default=None)
+    certified_gap: float | None = None
 
 
 def _relative(gap: float, f: float) -> float:
@@ -611,7 +617,8 @@ def solve_frame(prob: FWProblem, oracle, lam: np.ndarray, *, variant: str = "pai
                 start=None, gap_tol: float = 1e-6, abs_gap_tol: float = 0.0,
                 max_iter: int = 1000, time_limit: float | None = None, eps0: float = 0.1,
                 eps_min: float = 0.0, convex: bool = True, trace: bool = False,
-                oracle_time_limit: float | None = None) -> FWFrameResult:
+                oracle_time_limit: float | None = None, dual=None,
+                cert_sweeps: int = 200) -> FWFrameResult:
     """Minimise F for one frame with Frank–Wolfe.
 
     Parameters
@@ -638,6 +645,21 @@ def solve_frame(prob: FWProblem, oracle, lam: np.ndarray, *, variant: str = "pai
         Whether F is known to be convex (decides "converged" vs "stationary").
     trace : bool
         Record the per-iteration trace.
+    oracle_time_limit : float, optional
+        Seconds per oracle call.
+    dual : DualAscent, optional
+        With an exact (HiGHS) oracle: compute the Lagrangian certificate of
+        the final point with these multipliers (kept across frames).
+    cert_sweeps : int
+        Dual-ascent sweeps for that certificate.
+
+    Notes
+    -----
+    With an oracle that reports a Lagrangian ``bound`` (the dual-candidate
+    oracle of :mod:`ldpcmarg.decoders.lp_dual`), the stopping test uses the
+    certified gap ``<grad F, tau> - bound`` and passes the current point and
+    the target gap to the oracle, which may then certify the point without
+    building a vertex.
 
     Returns
     -------
@@ -667,27 +689,31 @@ def solve_frame(prob: FWProblem, oracle, lam: np.ndarray, *, variant: str = "pai
     status = "max_iter"
     tr = {"objective": [], "gap": [], "step": [], "oracle_seconds": [], "kind": [], "eps": []}
     stall = 0
+    cert = math.inf
+    prev = None  # last point with a valid gap: (tb, tl, F, gap, cert)
+    dual_oracle = hasattr(oracle, "dual") and hasattr(oracle, "counts")
     while True:
         gb, gl = prob.gradient(lam, tb, tl)
-        if it >= max_iter:
-            status = "max_iter"
-            break
         elapsed = time.perf_counter() - t_start
-        if time_limit is not None and elapsed >= time_limit:
-            status = "time_limit"
-            break
         lim = oracle_time_limit
         if time_limit is not None:
             rem = max(time_limit - elapsed, 1e-3)
             lim = rem if lim is None else min(lim, rem)
+        target = max(abs_gap_tol, gap_tol * max(1.0, abs(F)))
         t0 = time.perf_counter()
-        sol = oracle.solve(gb, gl, warm=True, time_limit=lim)
+        if dual_oracle:
+            sol = oracle.solve(gb, gl, warm=True, time_limit=lim, tau=(tb, tl),
+                               gap_target=target)
+        else:
+            sol = oracle.solve(gb, gl, warm=True, time_limit=lim)
         dt = time.perf_counter() - t0
         o_sec += dt
         calls += 1
         it += 1
         if not getattr(sol, "optimal", True) or not np.all(np.isfinite(sol.bits)):
             status = "time_limit" if getattr(sol, "status", "") == "time_limit" else "oracle_failed"
+            if prev is not None:  # report the last point whose gap is known
+                tb, tl, F, gap, cert = prev
             break
         sb = np.clip(np.asarray(sol.bits, dtype=np.float64), 0.0, 1.0)
         sl = np.clip(np.asarray(sol.local, dtype=np.float64), 0.0, 1.0)
@@ -699,13 +725,24 @@ def solve_frame(prob: FWProblem, oracle, lam: np.ndarray, *, variant: str = "pai
         gtau = float(gb @ tb + gl @ tl)
         gs = float(gb @ sb + gl @ sl)
         gap = max(gtau - gs, 0.0)
+        bound = float(getattr(sol, "bound", math.nan))
+        cert = max(gtau - bound, 0.0) if math.isfinite(bound) else math.inf
+        stop_gap = cert if math.isfinite(cert) else gap
+        prev = (tb, tl, F, gap, cert)
         if trace:
             tr["objective"].append(F)
             tr["gap"].append(gap)
             tr["oracle_seconds"].append(dt)
             tr["eps"].append(eps)
-        if gap <= abs_gap_tol or _relative(gap, F) <= gap_tol:
+        if stop_gap <= abs_gap_tol or _relative(stop_gap, F) <= gap_tol:
             status = "converged" if convex else "stationary"
+            if trace:
+                tr["step"].append(0.0)
+                tr["kind"].append(0)
+            break
+        if it >= max_iter or (time_limit is not None
+                              and time.perf_counter() - t_start >= time_limit):
+            status = "max_iter" if it >= max_iter else "time_limit"
             if trace:
                 tr["step"].append(0.0)
                 tr["kind"].append(0)
@@ -756,6 +793,14 @@ def solve_frame(prob: FWProblem, oracle, lam: np.ndarray, *, variant: str = "pai
                     mode[:] = _GENERIC
                     gmax, cap = wv / (1.0 - wv), False
                     slope = -gaway
+            elif active.keys.get(active.key(np.concatenate([sb, sl])), -1) == jv:
+                # the away atom is the oracle's vertex (ties): take a plain FW step
+                kind = 0
+                db, dl = sb - tb, sl - tl
+                _classify_kernel(prob.offset, 1, sl, sl, mode, hot_a, hot_b)
+                _check_negentropy_kernel(prob.offset, tl, negent)
+                gmax, cap = 1.0, False
+                slope = -gap
             else:  # pairwise
                 kind = 2
                 db, dl = sb - vb, sl - vl
@@ -812,11 +857,20 @@ def solve_frame(prob: FWProblem, oracle, lam: np.ndarray, *, variant: str = "pai
         if trace:
             tr["step"].append(gamma)
             tr["kind"].append(kind)
-    seconds = time.perf_counter() - t_start
     if not convex and start_spread >= 1e-3 and np.max(np.minimum(tb, 1.0 - tb)) < 1e-6:
         # started away from any vertex and ended on one: a Bethe trap
         status = "vertex"
     F = prob.free_energy(lam, tb, tl)
+    if dual is not None and not math.isfinite(cert):
+        # Lagrangian certificate at the final point (DESIGN.md §5a): any multipliers
+        # give a valid lower bound on the oracle LP, so gtau - bound >= F - F* (convex F)
+        gb, gl = prob.gradient(lam, tb, tl)
+        gtau = float(gb @ tb + gl @ tl)
+        dual.flatten(gl)
+        res = dual.run(gb, gl, max_sweeps=cert_sweeps,
+                       target=gtau - max(abs_gap_tol, gap_tol * max(1.0, abs(F))))
+        cert = max(gtau - float(res.bound), 0.0)
+    seconds = time.perf_counter() - t_start
     out_trace = None
     if trace:
         out_trace = {k: np.asarray(v, dtype=np.float64 if k != "kind" else np.int64)
@@ -825,7 +879,8 @@ def solve_frame(prob: FWProblem, oracle, lam: np.ndarray, *, variant: str = "pai
     return FWFrameResult(tau_bits=tb, tau_local=tl, free_energy=F, gap=gap_out,
                          relative_gap=_relative(gap_out, F), iterations=it, oracle_calls=calls,
                          oracle_seconds=o_sec, seconds=seconds, status=status, eps=eps,
-                         trace=out_trace)
+                         trace=out_trace,
+                         certified_gap=float(cert) if math.isfinite(cert) else None)
 
 
 # ------------------------------------------------------------- the decoder
@@ -865,6 +920,14 @@ class FrankWolfeDecoder(Decoder):
     warm_iter : int
         Iteration cap of the warm-start message passing (damping 0.5, stops when
         no message moves by more than 1e-12). Default 5000.
+    certificate : {"lagrangian", "none"}
+        ``"lagrangian"`` (default): certify the final point with the
+        Lagrangian bound of :mod:`ldpcmarg.decoders.lp_dual` (dual ascent,
+        multipliers kept across frames), giving ``info["certified_gap"]``,
+        which does not rely on HiGHS tolerances. With ``oracle="dual"`` the
+        certificate comes with every oracle call and also drives the stopping test.
+    cert_sweeps : int
+        Dual-ascent sweeps for the final certificate (default 200).
     trace : bool
         Put a per-iteration trace of every frame in ``info["trace"]`` (a list).
     trw_samples, trw_seed : int
@@ -883,9 +946,11 @@ class FrankWolfeDecoder(Decoder):
         ``duality_gap``, ``relative_gap``, ``free_energy`` (F,) float64;
         ``status`` (F,) str (see :class:`FWFrameResult`); ``convex`` (F,) bool;
         ``oracle_calls`` (F,), ``oracle_seconds``, ``seconds`` (F,);
-        ``log_partition_bound`` (F,) float64 only with ``entropy="trw"``:
-        ``ln Z <= gap - F(tau)``, valid when the oracle is exact (HiGHS
-        optimality tolerances apply); ``trace`` (list of dicts) on request.
+        ``certified_gap`` (F,) float64 when a certificate is on (``>= F - F*``
+        for convex F); ``log_partition_bound`` (F,) float64 only with
+        ``entropy="trw"``: ``ln Z <= certified_gap - F(tau)`` (or the FW gap
+        when the certificate is off; then HiGHS tolerances apply);
+        ``trace`` (list of dicts) on request.
     """
 
     name = "fw"
@@ -911,6 +976,10 @@ class FrankWolfeDecoder(Decoder):
                             doc="start point: uniform or reweighted sum-product beliefs"),
         "warm_iter": Param("int", 5000, low=1,
                            doc="iteration cap of the reweighted sum-product warm start"),
+        "certificate": Param("choice", "lagrangian", choices=("none", "lagrangian"),
+                             doc="certify the final point (info['certified_gap'])"),
+        "cert_sweeps": Param("int", 200, low=0,
+                             doc="dual-ascent sweeps for the Lagrangian certificate"),
         "trace": Param("bool", False, doc="record a per-iteration trace in info['trace']"),
         "trw_samples": Param("int", 200, low=1, doc="sampled hyperforests for entropy='trw'"),
         "trw_seed": Param("int", 0, low=0, doc="seed of the hyperforest sampler"),
@@ -965,12 +1034,14 @@ class FrankWolfeDecoder(Decoder):
         self.start_kind = ws
         self._oracle = None
         self._mp = None
+        self._dual = None
 
     # HiGHS objects do not pickle: ship the options, rebuild on the other side
     def __getstate__(self):
         state = self.__dict__.copy()
         state["_oracle"] = None
         state["_mp"] = None
+        state["_dual"] = None
         return state
 
     def _get_oracle(self):
@@ -987,8 +1058,17 @@ class FrankWolfeDecoder(Decoder):
                     from .lp_dual import DualCandidateOracle
                 except ImportError as exc:
                     raise InputError("oracle='dual' is not available in this build.") from exc
-                self._oracle = DualCandidateOracle(self.code)
+                self._oracle = DualCandidateOracle(self.code, lc=self._prob.lc)
         return self._oracle
+
+    def _get_dual(self):
+        if self.options["certificate"] != "lagrangian" or self.options["oracle"] == "dual":
+            return None
+        if self._dual is None:
+            from .lp_dual import DualAscent
+
+            self._dual = DualAscent(self.code, self._prob.lc)
+        return self._dual
 
     def _start(self, lam):
         if self.start_kind == "uniform":
@@ -1009,7 +1089,8 @@ class FrankWolfeDecoder(Decoder):
                            start=self._start(lam), gap_tol=o["gap_tol"],
                            abs_gap_tol=o["abs_gap_tol"], max_iter=o["max_iter"],
                            time_limit=o["time_limit"], eps0=o["eps0"], eps_min=o["eps_min"],
-                           convex=self.convex, trace=o["trace"])
+                           convex=self.convex, trace=o["trace"], dual=self._get_dual(),
+                           cert_sweeps=o["cert_sweeps"])
 
     def _decode(self, llr: np.ndarray) -> DecodeResult:
         F, n = llr.shape
@@ -1018,6 +1099,7 @@ class FrankWolfeDecoder(Decoder):
         info = {k: np.zeros(F) for k in ("duality_gap", "relative_gap", "free_energy",
                                          "oracle_seconds", "seconds")}
         info["oracle_calls"] = np.zeros(F, dtype=np.int64)
+        cert = np.full(F, np.nan)
         info["status"] = np.empty(F, dtype=object)
         info["convex"] = np.full(F, self.convex)
         traces = []
@@ -1033,10 +1115,16 @@ class FrankWolfeDecoder(Decoder):
             info["seconds"][f] = r.seconds
             info["oracle_calls"][f] = r.oracle_calls
             info["status"][f] = r.status
+            if r.certified_gap is not None:
+                cert[f] = r.certified_gap
             traces.append(r.trace)
         info["status"] = info["status"].astype(str)
+        have_cert = bool(np.all(np.isfinite(cert)))
+        if have_cert:
+            info["certified_gap"] = cert
         if self.entropy_kind == "trw":
-            info["log_partition_bound"] = info["duality_gap"] - info["free_energy"]
+            gap = cert if have_cert else info["duality_gap"]
+            info["log_partition_bound"] = gap - info["free_energy"]
         if self.options["trace"]:
             info["trace"] = traces
         bits = (post < 0).astype(np.uint8)
