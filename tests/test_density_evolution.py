@@ -174,10 +174,11 @@ def test_awgn_discretized_regular_36(disc36):
     res = disc36
     # sigma* = 0.8809 for the (3,6)-regular ensemble (Richardson & Urbanke, Modern
     # Coding Theory; Richardson, Shokrollahi & Urbanke 2001). Tolerance 1e-3:
-    # the quantised decoder errs low by an amount roughly proportional to the
-    # step; measured 0.88057 / 0.88081 / 0.88087 / 0.88089 at steps
-    # 0.1 / 0.05 / 0.025 / 0.02 (experiments/de_thresholds.py), i.e. about
-    # 3e-3 * step; plus the bisection bracket (1e-4) and 5e-5 rounding of 0.8809.
+    # the quantised decoder errs low, less as the step shrinks: measured
+    # 0.87975 / 0.88057 / 0.88082 / 0.88087 / 0.88089 at steps
+    # 0.2 / 0.1 / 0.05 / 0.025 / 0.0125 (experiments/de_thresholds.py), so at
+    # the default 0.05 the bias is about 1e-4; plus the bisection bracket (1e-4)
+    # and the 5e-5 rounding of 0.8809; 1e-3 leaves a margin for platforms.
     assert res.threshold == pytest.approx(0.8809, abs=1e-3)
     assert res.threshold <= 0.8809 + 1e-4  # the quantised decoder is degraded
     assert res.tolerance <= 1e-4
