@@ -43,8 +43,10 @@ def channel_spec_from_flags(**flags) -> str | None:
 @click.option("-o", "--output", required=True, type=click.Path(dir_okay=False),
               help="Output file: .npz (one file), .npy (+ .llr.npy, .bits.npy, .npy.json) "
                    "or .csv (long format + .csv.json).")
-@click.option("-d", "--decoder", default="sum-product", show_default=True,
-              help="Decoder spec NAME:key=value,... (see 'ldpcmarg decoders').")
+@click.option("-d", "--decoder", default="sum-product:early_stop=false", show_default=True,
+              help="Decoder spec NAME:key=value,... (see 'ldpcmarg decoders'). The default "
+                   "runs sum-product to its iteration limit: stopping at the first valid hard "
+                   "decision leaves the soft outputs unconverged.")
 @click.option("--ebn0", type=float, help="INPUT holds BPSK-AWGN outputs at this Eb/N0 (dB; "
                                          "uses the code rate k/n).")
 @click.option("--esn0", type=float, help="INPUT holds BPSK-AWGN outputs at this Es/N0 (dB).")
