@@ -256,16 +256,18 @@ class CompareResult:
                 return "n/a".rjust(width)
             return format(v, spec)
 
-        head = (f"{'SNR':>8} {'decoder':<28} {'BER':>9} {'FER':>9} {'mean|dp|':>9} "
-                f"{'max|dp|':>9} {'KL(bit)':>9} {'ECE':>9} {'MI(bit)':>7} {'iter':>6} "
-                f"{'ms/frame':>9}")
+        w = min(max([7] + [len(r.label) for r in self.rows]), 60)
+        head = (f"{'SNR':>8} {'decoder':<{w}} {'BER':>9} {'FER':>9} {'mean|dp|':>9} "
+                f"{'max|dp|':>9} {'KL(bit)':>9} {'ECE':>9} {'scale':>6} {'MI(bit)':>8} "
+                f"{'iter':>6} {'ms/frame':>9}")
         lines = [
             f"code {self.code.get('name')} (n={self.code.get('n')}, k={self.code.get('k')}), "
             f"channel {self.channel}, {self.frames} frames per point, seed {self.seed}",
             f"reference for posterior errors: {self.reference}"
             + (f" ({self.reference_note})" if self.reference_note else ""),
             f"SNR axis: {self.snr_label}; KL = KL(reference || decoder) per bit, in bits; "
-            "ECE of the stated bit-error probability against the transmitted bits",
+            "ECE of the stated bit-error probability against the transmitted bits; "
+            "scale = fitted LLR scale (< 1 over-confident, > 1 under-confident)",
             head, "-" * len(head),
         ]
         last = None
@@ -273,12 +275,13 @@ class CompareResult:
             if last is not None and r.snr != last:
                 lines.append("")
             last = r.snr
-            label = r.label if len(r.label) <= 28 else r.label[:25] + "..."
+            label = r.label if len(r.label) <= w else r.label[:w - 3] + "..."
+            scale = None if r.calibration is None else r.calibration.llr_scale
             lines.append(
-                f"{r.snr:>8g} {label:<28} {f(r.ber, '9.2e')} {f(r.fer, '9.2e')} "
+                f"{r.snr:>8g} {label:<{w}} {f(r.ber, '9.2e')} {f(r.fer, '9.2e')} "
                 f"{f(r.mean_abs_error, '9.2e')} {f(r.max_abs_error, '9.2e')} "
-                f"{f(r.mean_kl_bits, '9.2e')} {f(r.ece, '9.2e')} "
-                f"{f(r.mutual_information, '7.4f')} {r.mean_iterations:6.1f} "
+                f"{f(r.mean_kl_bits, '9.2e')} {f(r.ece, '9.2e')} {f(scale, '6.2f')} "
+                f"{f(r.mutual_information, '8.4f')} {r.mean_iterations:6.1f} "
                 f"{1e3 * r.time_per_frame_s:9.3f}"
             )
         return "\n".join(lines)
