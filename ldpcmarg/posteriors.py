@@ -444,6 +444,15 @@ def compute_posteriors(code, decoder=DEFAULT_DECODER, *, llr=None, outputs=None,
         Both or neither of ``llr`` / ``outputs``; a channel given with LLRs or
         missing with outputs; shape, NaN or channel mismatches; a decoder
         without soft output.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from ldpcmarg.code import ParityCheckCode
+    >>> spc = ParityCheckCode(np.array([[1, 1, 1]]))      # even-weight words of length 3
+    >>> res = compute_posteriors(spc, outputs=[1, 0, 0], channel="bsc:p=0.1")
+    >>> res.p1.round(4).tolist()   # codewords 000, 110, 101 one flip away, 011 three
+    [[0.6639, 0.3361, 0.3361]]
     """
     if (llr is None) == (outputs is None):
         raise InputError("Give either channel LLRs or channel outputs (with a channel), not both.")
