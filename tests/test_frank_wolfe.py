@@ -259,6 +259,11 @@ def test_options_and_errors():
     assert dec.entropy_kind == "trw" and dec.convex
     user = lm.make_decoder("fw", code, entropy=np.full(code.m, 0.5))
     assert user.entropy_kind == "user"
+    # Heskes' condition needs sum_c alpha_ic >= 3 * 0.5 - 1 at every bit, 12 in
+    # total, but the checks only hold 12 * 0.5 = 6: not guaranteed
+    assert not user.convex
+    # rho = 0.3: every bit keeps 1 - 3 * 0.3 > 0 of its own entropy, concave
+    assert lm.make_decoder("fw", code, entropy=0.3).convex
     assert lm.make_decoder("fw", code, entropy="1.0").convex is False
     with pytest.raises(InputError, match="entropy"):
         lm.make_decoder("fw", code, entropy="tree")
