@@ -791,7 +791,9 @@ class OracleSolution:
         ``"certified-lagrangian"``, ``"certified-word"``, ``"certified-restricted"``
         (the point is proved within the acceptance tolerance of the optimum by
         the dual bound), ``"certified-point"`` (the caller's point ``tau`` was
-        returned, proved within ``gap_target`` or the tolerance),
+        returned, proved within ``gap_target`` or the tolerance), the fallback
+        solver's status when it failed (e.g. ``"time_limit"``; ``route`` is
+        then ``"fallback"``),
         ``"fallback"`` (exact solver's answer) or ``"uncertified"`` (no
         fallback configured; the point is feasible but not proved optimal).
     optimal : bool
@@ -1228,10 +1230,13 @@ class DualCandidateOracle:
         self.counts["fallback"] += 1
         self.routes["fallback"] = self.routes.get("fallback", 0) + 1
         obj = float(sol.objective)
+        status = "fallback"
         if sol.optimal:
             bound = self._bound_from_fallback_duals(fb, g, h, bound)
+        else:  # pass the solver's own status on (e.g. "time_limit")
+            status = str(getattr(sol, "status", "fallback_failed"))
         return OracleSolution(np.asarray(sol.bits, dtype=np.float64),
-                              np.asarray(sol.local, dtype=np.float64), obj, "fallback",
+                              np.asarray(sol.local, dtype=np.float64), obj, status,
                               bool(sol.optimal), iters + int(sol.simplex_iterations),
                               time.perf_counter() - t0, bound, obj - bound, False, "fallback",
                               res.sweeps, rounds)
