@@ -490,14 +490,23 @@ def _bisect(succeeds, lo: float, hi: float, tol: float):
 # BEC: exact density evolution
 # ======================================================================
 @nb.njit(**NUMBA_OPTS)
-def _bec_kernel(lam, rho, eps, max_iter, target, stall):
+def _bec_kernel(lam, rho, eps, max_iter, target, stall, r_lin, half_m):
     """Run ``x <- eps * lambda(1 - rho(1 - x))`` from ``x = eps``.
 
-    Assumes ``lam``/``rho`` contiguous float64 indexed by degree. Returns
-    ``(status, iterations, x)`` with status 1 = reached ``x <= target``,
-    0 = stalled at a non-zero fixed point (decrease below ``stall * x``),
-    -1 = iteration cap.
+    Assumes ``lam``/``rho`` contiguous float64 indexed by degree, ``lam[1] = 0``,
+    ``r_lin = eps * lambda_2 * rho'(1)`` (slope of the map at 0) and
+    ``half_m = eps * M / 2`` with ``M >= |h''|`` on [0, 1] for
+    ``h(x) = lambda(1 - rho(1 - x))``. Returns ``(status, iterations, x)``:
+
+    * 1 = reached ``x <= target``;
+    * 2 = certified: ``r_lin + half_m * x < 1``, so ``g(y) < y`` on (0, x]
+      (Taylor bound ``g(y) <= r_lin y + half_m y**2``) and ``x_l -> 0``;
+    * 0 = stalled at a non-zero fixed point (decrease below ``stall * x``),
+      or unstable at 0 (``r_lin > 1``: the recursion cannot reach 0);
+    * -1 = iteration cap (undecided; counted as failure).
     """
+    if r_lin > 1.0:
+        return 0, 0, eps
     x = eps
     for it in range(1, max_iter + 1):
         y = 1.0 - x
@@ -511,10 +520,21 @@ def _bec_kernel(lam, rho, eps, max_iter, target, stall):
         xn = eps * v
         if xn <= target:
             return 1, it, xn
+        if r_lin + half_m * xn < 1.0:
+            return 2, it, xn
         if x - xn <= stall * x:
             return 0, it, xn
         x = xn
     return -1, max_iter, x
+
+
+def _deriv_at_one(coef: np.ndarray, order: int) -> float:
+    """``order``-th derivative at x = 1 of ``sum_d coef[d] x**(d-1)``."""
+    d = np.arange(coef.size, dtype=np.float64)
+    f = np.ones_like(d)
+    for k in range(order):
+        f *= np.maximum(d - 1 - k, 0.0)
+    return float(np.sum(coef * f))
 
 
 def bec_evolution(dd, eps: float, max_iter: int = 1000) -> np.ndarray:
@@ -543,23 +563,28 @@ def bec_evolution(dd, eps: float, max_iter: int = 1000) -> np.ndarray:
     return xs
 
 
-def bec_threshold(dd, *, tol: float = 1e-7, max_iter: int = 200_000,
+def bec_threshold(dd, *, tol: float = 1e-7, max_iter: int = 1_000_000,
                   target: float = 1e-12) -> ThresholdResult:
     """Exact BP threshold ``eps*`` of an ensemble on the binary erasure channel.
 
-    Bisection on ``eps``: a trial succeeds when the message erasure probability
-    falls to ``target``; it fails when the recursion stalls at a non-zero
-    fixed point or hits ``max_iter``.
+    Bisection on ``eps``. A trial succeeds when the message erasure probability
+    falls to ``target`` or, earlier, once it is small enough that a Taylor bound
+    proves it goes on to 0. It fails when the recursion stalls at a non-zero
+    fixed point, when 0 is unstable (``eps lambda_2 rho'(1) > 1``, the stability
+    condition of Richardson, Shokrollahi & Urbanke 2001), or at ``max_iter``.
 
     Parameters
     ----------
     dd : DegreeDistribution, ParityCheckCode or (lambda, rho) pair
     tol : float
-        Final bracket width (``eps*`` is known to within ``tol``).
+        Final bracket width.
     max_iter : int
-        Iteration cap per trial. Near the threshold the recursion needs about
-        ``C / sqrt(eps* - eps)`` iterations, so the default leaves a bias far
-        below ``tol``.
+        Iteration cap per trial. Near a threshold set by a non-zero fixed point
+        the recursion needs about ``C / sqrt(eps* - eps)`` iterations, so the
+        cap costs nothing there. When the threshold is set by the stability
+        condition the recursion slows down like ``1 / (eps_stab - eps)`` and the
+        cap leaves ``threshold`` low by roughly ``30 eps / max_iter``;
+        ``settings["capped_trials"]`` counts the trials that ended by the cap.
     target : float
         Erasure probability counted as convergence to zero.
 
@@ -574,13 +599,26 @@ def bec_threshold(dd, *, tol: float = 1e-7, max_iter: int = 200_000,
     max_iter = _check_positive("max_iter", max_iter, integer=True)
     target = _check_positive("target", target, high=1e-3)
     lam, rho = dd.lam, dd.rho
+    if lam[1] > 0:
+        # x_{l+1} >= eps * lambda_1 > 0: no erasure probability below eps * lambda_1
+        settings = {"max_iter": max_iter, "target": target, "tol": tol, "capped_trials": 0,
+                    "note": "degree-1 variable nodes: threshold 0"}
+        return _finish(dd, "bec", "exact", "epsilon", 0.0, 0, 0.0, settings, t0)
+    lam2 = lam[2] if lam.size > 2 else 0.0
+    rho1 = _deriv_at_one(rho, 1)
+    # |h''| <= lambda''(1) rho'(1)^2 + lambda'(1) rho''(1) (all coefficients >= 0)
+    m_bound = _deriv_at_one(lam, 2) * rho1**2 + _deriv_at_one(lam, 1) * _deriv_at_one(rho, 2)
+    capped = [0]
 
     def ok(eps):
-        st, it, _ = _bec_kernel(lam, rho, eps, max_iter, target, 1e-15)
-        return st == 1, it
+        st, it, _ = _bec_kernel(lam, rho, eps, max_iter, target, 1e-15,
+                                eps * lam2 * rho1, 0.5 * eps * m_bound)
+        capped[0] += st == -1
+        return st >= 1, it
 
     lo, hi, it = _bisect(ok, 0.0, 1.0, tol)
-    settings = {"max_iter": max_iter, "target": target, "tol": tol}
+    settings = {"max_iter": max_iter, "target": target, "tol": tol,
+                "capped_trials": int(capped[0])}
     return _finish(dd, "bec", "exact", "epsilon", lo, it, hi - lo, settings, t0)
 
 
@@ -811,8 +849,17 @@ class _DiscretizedDE:
         return _sd_to_full(acc_s, acc_d, self.K)
 
     def run(self, sigma: float, max_iter: int, target: float, stall: float,
-            trace: bool = False):
+            trace: bool = False, r_stab: float | None = None):
+        """Evolve the densities at ``sigma``; returns (status, iterations, P_e trace, density).
+
+        status 1 = error probability reached ``target``; 2 = linear regime
+        reached (see :func:`awgn_threshold_discretized`, only when ``r_stab``
+        is given); 0 = stalled; -1 = iteration cap.
+        """
         K = self.K
+        bw = np.exp(-0.5 * self.step * np.arange(-K, K + 1, dtype=np.float64))
+        b_prev = float(np.dot(bw, _quantised_channel(sigma, K, self.step)))
+        contracting = 0
         ch = _quantised_channel(sigma, K, self.step)
         ch_f = np.fft.rfft(ch, self.nfft)
         lam = self.dd.lam
@@ -862,7 +909,23 @@ class _DiscretizedDE:
                 status = 0
                 break
             pe_prev = pe
+            if r_stab is not None:
+                b = float(np.dot(bw, msg))
+                if b <= _LINEAR_B and b <= (1.0 - 0.5 * (1.0 - r_stab)) * b_prev:
+                    contracting += 1
+                    if contracting >= _LINEAR_RUN:
+                        status = 2
+                        break
+                else:
+                    contracting = 0
+                b_prev = b
         return status, done, np.asarray(pes), msg
+
+
+#: Linear-regime rule: Bhattacharyya parameter below this, contracting for this many
+#: iterations in a row by at least half the linear margin ``1 - r_stab``.
+_LINEAR_B = 1e-3
+_LINEAR_RUN = 5
 
 
 def _pe(p: np.ndarray, K: int) -> float:
@@ -938,7 +1001,8 @@ def awgn_threshold_discretized(dd, *, step: float = _DISC_DEFAULTS["step"],
                                max_iter: int = _DISC_DEFAULTS["max_iter"],
                                target: float = _DISC_DEFAULTS["target"],
                                stall: float = _DISC_DEFAULTS["stall"],
-                               tol: float = _DISC_DEFAULTS["tol"]) -> ThresholdResult:
+                               tol: float = _DISC_DEFAULTS["tol"],
+                               linear_stop: bool = True) -> ThresholdResult:
     """BP threshold ``sigma*`` on the BI-AWGN channel by discretised density evolution.
 
     Parameters
@@ -959,6 +1023,15 @@ def awgn_threshold_discretized(dd, *, step: float = _DISC_DEFAULTS["step"],
         less than ``stall`` times its value (a non-zero fixed point).
     tol : float
         Final width of the bisection bracket on ``sigma``.
+    linear_stop : bool
+        For ensembles with degree-2 variable nodes, also count a trial as a
+        success once the message density is in the linear regime around the
+        error-free fixed point: Bhattacharyya parameter ``E[exp(-L/2)] <= 1e-3``
+        and shrinking, five iterations in a row, by a factor at most
+        ``1 - (1 - r)/2`` with ``r = lambda_2 rho'(1) exp(-1/(2 sigma^2)) < 1``,
+        the factor by which the linearised recursion contracts it. Without
+        this rule, thresholds set by the stability condition need
+        ``~1/(sigma_stab - sigma)`` iterations and come out low.
 
     Returns
     -------
@@ -969,6 +1042,11 @@ def awgn_threshold_discretized(dd, *, step: float = _DISC_DEFAULTS["step"],
     -----
     The search brackets ``sigma*`` between the Gaussian-approximation value
     minus/plus a margin (widened until the ends fail/succeed) and bisects.
+    Noise levels beyond the stability condition ``lambda_2 rho'(1)
+    exp(-1/(2 sigma^2)) < 1`` fail without a run (``settings["stability_sigma"]``).
+    When the threshold is set by that condition, the error probability falls
+    ever more slowly close to it, so the iteration cap leaves the result a
+    little low.
     """
     t0 = time.perf_counter()
     dd = _as_dd(dd)
@@ -977,10 +1055,22 @@ def awgn_threshold_discretized(dd, *, step: float = _DISC_DEFAULTS["step"],
     if not 0.0 < R < 1.0:
         raise InputError(f"The ensemble's design rate is {R:.4g}; a threshold needs 0 < R < 1.")
     de = _DiscretizedDE(dd, st["step"], st["llr_max"])
+    # stability condition lambda_2 rho'(1) exp(-1/(2 sigma^2)) < 1 (Richardson,
+    # Shokrollahi & Urbanke 2001): beyond it BP cannot converge, so skip the run
+    lam2 = dd.lam[2] if dd.lam.size > 2 else 0.0
+    slope = lam2 * _deriv_at_one(dd.rho, 1)
+    sigma_stab = math.sqrt(1.0 / (2.0 * math.log(slope))) if slope > 1.0 else math.inf
+    st["stability_sigma"] = sigma_stab
+
+    st["linear_stop"] = bool(linear_stop)
 
     def ok(sig):
-        status, it, _, _ = de.run(sig, st["max_iter"], st["target"], st["stall"])
-        return status == 1, it
+        if sig >= sigma_stab:
+            return False, 0
+        r_stab = slope * math.exp(-0.5 / sig**2) if (linear_stop and lam2 > 0) else None
+        status, it, _, _ = de.run(sig, st["max_iter"], st["target"], st["stall"],
+                                  r_stab=r_stab)
+        return status >= 1, it
 
     lo, hi, it_lo = _bracket(ok, dd)
     lo, hi, it = _bisect(ok, lo, hi, st["tol"])

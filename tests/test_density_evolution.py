@@ -47,7 +47,12 @@ def _eps_star_fixed_point(dd: DegreeDistribution) -> float:
     i = int(np.argmin(f(xs)))
     lo, hi = xs[max(i - 1, 0)], xs[min(i + 1, xs.size - 1)]
     res = minimize_scalar(f, bounds=(lo, hi), method="bounded", options={"xatol": 1e-12})
-    return float(min(res.fun, f(xs).min()))
+    best = float(min(res.fun, f(xs).min()))
+    # the limit x -> 0 is the stability bound 1 / (lambda_2 rho'(1))
+    if dd.lam.size > 2 and dd.lam[2] > 0:
+        rho_prime_1 = sum((d - 1) * dd.rho[d] for d in range(dd.rho.size))
+        best = min(best, 1.0 / (dd.lam[2] * rho_prime_1))
+    return best
 
 
 # ---------------------------------------------------------------- ensembles
@@ -205,6 +210,20 @@ def test_awgn_discretized_evolution_sides():
     assert ok["density"].sum() == pytest.approx(1.0) and ok["density"].min() >= 0
 
 
+def test_awgn_discretized_respects_stability_condition():
+    # lambda(x) = x: the threshold is capped by the stability condition
+    # lambda_2 rho'(1) exp(-1/(2 sigma^2)) < 1 (Richardson, Shokrollahi & Urbanke 2001).
+    dd = DegreeDistribution.from_edge_fractions({2: 1.0}, {5: 0.55, 6: 0.45})
+    slope = 0.55 * 4 + 0.45 * 5
+    sigma_stab = math.sqrt(1 / (2 * math.log(slope)))
+    res = awgn_threshold_discretized(dd, step=0.1, tol=2e-4)
+    assert res.settings["stability_sigma"] == pytest.approx(sigma_stab)
+    assert res.threshold <= sigma_stab
+    # the linear-regime rule only adds successes near the error-free fixed point
+    plain = awgn_threshold_discretized(dd, step=0.1, tol=2e-4, linear_stop=False)
+    assert res.threshold >= plain.threshold - 2e-4
+
+
 def test_boxplus_fast_kernel_matches_naive():
     rng = np.random.default_rng(7)
     for K, step in [(60, 0.25), (200, 0.1)]:
@@ -281,6 +300,37 @@ def test_gaussian_thresholds_below_shannon_limit(dd):
     ga = awgn_threshold_gaussian(dd)
     assert 0 < ga.threshold < ga.capacity_limit
     assert ga.gap_db > 0
+
+
+def _random_ensembles(count: int, seed: int):
+    rng = np.random.default_rng(seed)
+    out = []
+    while len(out) < count:
+        vd = rng.choice(np.arange(2, 12), size=rng.integers(1, 4), replace=False)
+        cd = rng.choice(np.arange(3, 14), size=rng.integers(1, 3), replace=False)
+        dd = DegreeDistribution.from_edge_fractions(dict(zip(vd.tolist(), rng.dirichlet(
+            np.ones(vd.size)).tolist(), strict=True)), dict(zip(cd.tolist(), rng.dirichlet(
+                np.ones(cd.size)).tolist(), strict=True)))
+        if 0.05 < dd.design_rate < 0.95:
+            out.append(dd)
+    return out
+
+
+@pytest.mark.parametrize("dd", _random_ensembles(12, seed=5))
+def test_random_ensembles_never_beat_capacity(dd):
+    # Thresholds of any ensemble respect capacity (channel coding theorem): BEC
+    # eps* <= 1 - R, BI-AWGN sigma* below the Shannon-limit sigma for rate R.
+    bec = bec_threshold(dd, tol=1e-6)
+    assert bec.threshold <= 1.0 - dd.design_rate + 1e-6
+    ref = _eps_star_fixed_point(dd)
+    # successes are certified, so the bisection never lands above the reference
+    assert bec.threshold <= ref + 1e-9
+    # below it by at most the bracket, or, when trials hit the iteration cap
+    # (threshold set by the stability condition), by the documented ~30 eps/max_iter
+    slack = 1e-6 if bec.settings["capped_trials"] == 0 else 30 * ref / bec.settings["max_iter"]
+    assert bec.threshold >= ref - slack
+    ga = awgn_threshold_gaussian(dd, tol=1e-4)
+    assert ga.threshold < ga.capacity_limit
 
 
 # ---------------------------------------------------------- vs simulation
