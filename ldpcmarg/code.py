@@ -11,7 +11,6 @@ indices. Tanner-graph edges are numbered in check-major (CSR) order: edge
 from __future__ import annotations
 
 import hashlib
-import math
 from dataclasses import dataclass
 from functools import cached_property
 
@@ -20,7 +19,6 @@ import numpy as np
 import scipy.sparse as sp
 
 from . import gf2
-
 from ._settings import DEFAULT_MAX_CHECK_DEGREE, NUMBA_OPTS
 from .errors import InputError
 
@@ -69,7 +67,7 @@ class LocalCodewords:
 
 
 def _even_patterns(d: int) -> np.ndarray:
-    """All even-weight binary vectors of length d, shape (2**(d-1), d), in increasing integer order."""
+    """All even-weight binary vectors of length d, shape (2**(d-1), d), in increasing order."""
     if d == 0:
         return np.zeros((1, 0), dtype=np.uint8)
     ints = np.arange(2**d, dtype=np.int64)
@@ -415,7 +413,8 @@ class ParityCheckCode:
             if np.any(bad):
                 r, c = (int(v) for v in np.argwhere(bad)[0])
                 raise InputError(
-                    f"The parity-check matrix must be binary (0/1); entry ({r}, {c}) is {arr[r, c]!r}."
+                    f"The parity-check matrix must be binary (0/1); entry ({r}, {c}) is "
+                    f"{arr[r, c].item()!r}."
                 )
             rows, cols = np.nonzero(arr)
             shape = arr.shape
@@ -492,7 +491,8 @@ class ParityCheckCode:
             chunks.append(cache[d])
         bits = np.concatenate(chunks) if chunks else np.zeros(0, dtype=np.uint8)
         owner = np.repeat(np.arange(self.m, dtype=np.int64), counts)
-        return LocalCodewords(offset=offset, bit_ptr=bit_ptr, bits=bits.astype(np.uint8), owner=owner)
+        return LocalCodewords(offset=offset, bit_ptr=bit_ptr, bits=bits.astype(np.uint8),
+                              owner=owner)
 
 
     # --------------------------------------------------------- graph structure
@@ -578,7 +578,7 @@ class ParityCheckCode:
         return hist
 
     def minimum_distance(self, max_exact_k: int = 26, budget: int = 300,
-                         seed: int = 0) -> MinimumDistance:
+                         seed: int = 0, method: str = "stern") -> MinimumDistance:
         """Minimum distance: exact for small ``k``, otherwise a labelled upper bound.
 
         Parameters
@@ -587,12 +587,15 @@ class ParityCheckCode:
             Enumerate all ``2**k`` codewords (Gray-code order, bit-packed) when
             ``k <= max_exact_k``.
         budget : int
-            Otherwise, the number of random information sets tried by a
-            Lee-Brickell information-set search (``p = 2``); the lightest
-            codeword found is an upper bound. Work grows like
-            ``budget * (n * m**2 / 64 + k**2 * m / 64)`` word operations.
+            Otherwise, the number of random information sets tried by an
+            information-set search (:func:`ldpcmarg.gf2.information_set_search`);
+            the lightest codeword found is an upper bound. Each information
+            set costs one Gauss-Jordan elimination of ``H`` (about
+            ``n * m**2 / 128`` word operations) plus the search over it.
         seed : int
             Seed of the search (results are reproducible).
+        method : {"stern", "lee-brickell"}
+            Search variant (see :func:`ldpcmarg.gf2.information_set_search`).
 
         Returns
         -------
@@ -607,10 +610,10 @@ class ParityCheckCode:
                                    witness)
         if budget < 1:
             raise InputError(f"The search budget must be an integer >= 1; got {budget}.")
-        w, witness = gf2.information_set_search(self.H, budget=int(budget), seed=int(seed))
+        w, witness = gf2.information_set_search(self.H, budget=int(budget), seed=int(seed),
+                                                method=method)
         return MinimumDistance(
-            int(w), False,
-            f"information-set search (Lee-Brickell, p=2), {budget} sets, seed {seed}",
+            int(w), False, f"information-set search ({method}), {budget} sets, seed {seed}",
             witness)
 
     # ------------------------------------------------------------- operations

@@ -76,7 +76,8 @@ def _from_edges(rows, cols, shape, name, source) -> ParityCheckCode:
 # ------------------------------------------------------------ degree sequences
 def _normalise_dist(dist, what: str) -> dict[int, float]:
     if not isinstance(dist, dict) or not dist:
-        raise InputError(f"The {what} degree distribution must be a non-empty dict degree -> fraction.")
+        raise InputError(
+            f"The {what} degree distribution must be a non-empty dict degree -> fraction.")
     out = {}
     for d, f in dist.items():
         d = _int(f"A {what} degree", d, 1)
@@ -281,7 +282,7 @@ def _peg_kernel(order, var_deg, check_cap, uniforms, var_adj, var_cnt, check_adj
     u = 0
     for oi in range(order.shape[0]):
         j = order[oi]
-        for t in range(var_deg[j]):
+        for _t in range(var_deg[j]):
             for c in range(m):
                 cdist[c] = big
             for v in range(n):
@@ -375,7 +376,8 @@ def peg(n: int, m: int, var_degrees, seed=0, check_degrees=None,
     E = int(vd.sum())
     if isinstance(check_degrees, str):
         if check_degrees != "free":
-            raise InputError(f"check_degrees must be a sequence, None or 'free'; got {check_degrees!r}.")
+            raise InputError(
+                f"check_degrees must be a sequence, None or 'free'; got {check_degrees!r}.")
         cd = np.full(m, n, dtype=np.int64)
     elif check_degrees is None:
         cd = np.full(m, E // m, dtype=np.int64)
@@ -384,7 +386,8 @@ def peg(n: int, m: int, var_degrees, seed=0, check_degrees=None,
         cd = np.asarray(check_degrees, dtype=np.int64)
         if cd.shape != (m,) or int(cd.sum()) != E or cd.min() < 0:
             raise InputError(
-                f"check_degrees must have length m = {m}, be >= 0 and sum to {E} (the bit degrees).")
+                f"check_degrees must have length m = {m}, be >= 0 and sum to {E} "
+                "(the bit degrees).")
     rng = _rng(seed)
     uniforms = rng.random(E)
     if order not in ("ascending", "descending"):
@@ -403,8 +406,9 @@ def peg(n: int, m: int, var_degrees, seed=0, check_degrees=None,
     rows = np.repeat(np.arange(n, dtype=np.int64), vd)
     cols = np.concatenate([var_adj[i, : vd[i]] for i in range(n)])
     degtxt = f"{int(vd[0])}" if np.all(vd == vd[0]) else "irregular"
+    vtxt = degtxt if degtxt != "irregular" else "sequence"
     return _from_edges(cols, rows, (m, n), name or f"peg-{n}-{m}-{degtxt}",
-                       f"peg(n={n}, m={m}, var_degrees={degtxt if degtxt != 'irregular' else 'sequence'}, "
+                       f"peg(n={n}, m={m}, var_degrees={vtxt}, "
                        f"seed={seed}, order={order}"
                        + (", check_degrees=free" if isinstance(check_degrees, str) else "") + ")")
 

@@ -489,12 +489,60 @@ def enumerate_weights(gen_dense: np.ndarray):
 
 
 @nb.njit(**NUMBA_OPTS)
-def _isd_kernel(hrows, n, perms, p, best_in, witness):
-    """Lee-Brickell information-set search over a batch of column permutations.
+def _xor_weight(cols, a, b, c, d, base, bound):
+    """base + popcount(cols[a] ^ cols[b] ^ cols[c] ^ cols[d]) (indices < 0 are absent).
+
+    Stops early once the running weight reaches ``bound``.
+    """
+    s = base
+    for w in range(cols.shape[1]):
+        x = np.uint64(0)
+        if a >= 0:
+            x ^= cols[a, w]
+        if b >= 0:
+            x ^= cols[b, w]
+        if c >= 0:
+            x ^= cols[c, w]
+        if d >= 0:
+            x ^= cols[d, w]
+        s += int(_popcount64(x))
+        if s >= bound:
+            return s
+    return s
+
+
+@nb.njit(**NUMBA_OPTS)
+def _side_items(lo, hi, pairs, cols, zmask):
+    """Subsets of size 0, 1 (and 2 if ``pairs``) of free columns lo..hi-1 (window bits zeroed)."""
+    cnt = hi - lo
+    total = 1 + cnt + (cnt * (cnt - 1) // 2 if pairs else 0)
+    ia = np.full(total, -1, dtype=np.int64)
+    ib = np.full(total, -1, dtype=np.int64)
+    zv = np.zeros(total, dtype=np.uint64)
+    q = 1
+    for f in range(lo, hi):
+        ia[q] = f
+        q += 1
+    if pairs:
+        for f in range(lo, hi):
+            for g in range(f + 1, hi):
+                ia[q] = f
+                ib[q] = g
+                q += 1
+    return ia, ib, zv
+
+
+@nb.njit(**NUMBA_OPTS)
+def _isd_kernel(hrows, n, perms, method, max_pairs_side, best_in, witness):
+    """Information-set search over a batch of column permutations.
 
     hrows : (m, ceil(n/64)) uint64, packed H in original column order.
     perms : (B, n) int64, one column order per information set.
-    p : 1 or 2, largest number of information bits combined.
+    method : 0 = Lee-Brickell (information weight <= 2); 1 = Stern (information
+        set split in halves X, Y; subsets of size <= 2 of each half whose
+        combination vanishes on a window of l parity rows, l ~ log2 of the
+        list size, rows chosen with density closest to 1/2; a half larger
+        than ``max_pairs_side`` uses subsets of size <= 1).
     best_in : current best weight (only strictly lighter codewords are kept).
     witness : (n,) uint8, overwritten with each improvement.
     Returns the best weight found (``best_in`` if none lighter).
@@ -537,63 +585,176 @@ def _isd_kernel(hrows, n, perms, p, best_in, witness):
                 t = free[f]
                 if (rows[j, t >> 6] >> np.uint64(t & 63)) & one:
                     cols[f, j >> 6] |= one << np.uint64(j & 63)
-        wts = np.zeros(k, dtype=np.int64)
+        sel = np.full(4, -1, dtype=np.int64)
+        found = False
+        # information weight 1 (always)
         for f in range(k):
-            s = 0
-            for w in range(wr):
-                s += int(_popcount64(cols[f, w]))
-            wts[f] = s
-        ba = -1
-        bb = -1
-        for f in range(k):
-            if 1 + wts[f] < best:
-                best = 1 + wts[f]
-                ba = f
-                bb = -1
-        if p >= 2:
+            w = _xor_weight(cols, f, -1, -1, -1, 1, best)
+            if w < best:
+                best = w
+                sel[:] = -1
+                sel[0] = f
+                found = True
+        if method == 0:
             for f in range(k):
                 for g in range(f + 1, k):
-                    s = 2
-                    for w in range(wr):
-                        s += int(_popcount64(cols[f, w] ^ cols[g, w]))
-                        if s >= best:
-                            break
-                    if s < best:
-                        best = s
-                        ba = f
-                        bb = g
-        if ba >= 0:
+                    w = _xor_weight(cols, f, g, -1, -1, 2, best)
+                    if w < best:
+                        best = w
+                        sel[:] = -1
+                        sel[0] = f
+                        sel[1] = g
+                        found = True
+        else:
+            half = k // 2
+            pairs = half <= max_pairs_side
+            ia, ib, zx = _side_items(0, half, pairs, cols, np.uint64(0))
+            ja, jb, zy = _side_items(half, k, pairs, cols, np.uint64(0))
+            ny = ja.shape[0]
+            ell = 0
+            while (1 << (ell + 1)) <= ny and ell < 63:
+                ell += 1
+            ell = min(ell, rk, 63)
+            # window: the ell parity rows whose density over the free columns is
+            # closest to 1/2 (sparse rows would put most subsets in one bucket)
+            dens = np.zeros(rk, dtype=np.int64)
+            for f in range(k):
+                for j in range(rk):
+                    if (cols[f, j >> 6] >> np.uint64(j & 63)) & one:
+                        dens[j] += 1
+            win = np.argsort(np.abs(2 * dens - k))[:ell]
+            zcol = np.zeros(k, dtype=np.uint64)
+            for f in range(k):
+                z = np.uint64(0)
+                for i in range(ell):
+                    j = win[i]
+                    z |= ((cols[f, j >> 6] >> np.uint64(j & 63)) & one) << np.uint64(i)
+                zcol[f] = z
+            for q in range(zx.shape[0]):
+                z = np.uint64(0)
+                if ia[q] >= 0:
+                    z ^= zcol[ia[q]]
+                if ib[q] >= 0:
+                    z ^= zcol[ib[q]]
+                zx[q] = z
+            for q in range(ny):
+                z = np.uint64(0)
+                if ja[q] >= 0:
+                    z ^= zcol[ja[q]]
+                if jb[q] >= 0:
+                    z ^= zcol[jb[q]]
+                zy[q] = z
+            # merge-join the two lists on their window bits
+            ox = np.argsort(zx)
+            oy = np.argsort(zy)
+            nxl = zx.shape[0]
+            # count the matches first: when the window rows are strongly
+            # dependent (structured codes) the matches explode; skip the
+            # pair search of such an information set to bound the work
+            matches = 0
+            px = 0
+            py = 0
+            while px < nxl and py < ny:
+                kx = zx[ox[px]]
+                ky = zy[oy[py]]
+                if kx < ky:
+                    px += 1
+                elif ky < kx:
+                    py += 1
+                else:
+                    ex = px
+                    while ex < nxl and zx[ox[ex]] == kx:
+                        ex += 1
+                    ey = py
+                    while ey < ny and zy[oy[ey]] == kx:
+                        ey += 1
+                    matches += (ex - px) * (ey - py)
+                    px = ex
+                    py = ey
+            px = 0
+            py = 0
+            if matches > 16 * (nxl + ny) + 100000:
+                px = nxl
+            while px < nxl and py < ny:
+                kx = zx[ox[px]]
+                ky = zy[oy[py]]
+                if kx < ky:
+                    px += 1
+                    continue
+                if ky < kx:
+                    py += 1
+                    continue
+                ex = px
+                while ex < nxl and zx[ox[ex]] == kx:
+                    ex += 1
+                ey = py
+                while ey < ny and zy[oy[ey]] == kx:
+                    ey += 1
+                for u in range(px, ex):
+                    q = ox[u]
+                    nx = (ia[q] >= 0) + (ib[q] >= 0)
+                    for v in range(py, ey):
+                        y = oy[v]
+                        nyy = (ja[y] >= 0) + (jb[y] >= 0)
+                        if nx + nyy == 0:
+                            continue
+                        w = _xor_weight(cols, ia[q], ib[q], ja[y], jb[y], nx + nyy, best)
+                        if w < best:
+                            best = w
+                            sel[0] = ia[q]
+                            sel[1] = ib[q]
+                            sel[2] = ja[y]
+                            sel[3] = jb[y]
+                            found = True
+                px = ex
+                py = ey
+        if found:
             for t in range(n):
                 witness[t] = 0
-            witness[perm[free[ba]]] = 1
-            if bb >= 0:
-                witness[perm[free[bb]]] = 1
+            for s_ in range(4):
+                if sel[s_] >= 0:
+                    witness[perm[free[sel[s_]]]] ^= 1
             for j in range(rk):
-                bit = (cols[ba, j >> 6] >> np.uint64(j & 63)) & one
-                if bb >= 0:
-                    bit ^= (cols[bb, j >> 6] >> np.uint64(j & 63)) & one
+                bit = np.uint64(0)
+                for s_ in range(4):
+                    if sel[s_] >= 0:
+                        bit ^= (cols[sel[s_], j >> 6] >> np.uint64(j & 63)) & one
                 if bit:
                     witness[perm[pivots[j]]] = 1
     return best
 
 
-def information_set_search(M, budget: int, seed: int = 0, p: int = 2, batch: int = 64):
+_ISD_METHODS = {"lee-brickell": 0, "stern": 1}
+
+
+def information_set_search(M, budget: int, seed: int = 0, method: str = "stern",
+                           max_pairs_side: int = 2000, batch: int = 16):
     """Randomised search for a low-weight nonzero vector of the nullspace of ``M``.
 
-    Lee-Brickell's variant of information-set decoding: draw a random column
-    order, bring ``M`` to reduced echelon form, and inspect every codeword
-    whose information part has weight 1..``p``. The lightest codeword seen is
-    an upper bound on the minimum distance; it is not proven minimal.
+    Information-set decoding: draw a random column order, bring ``M`` to
+    reduced echelon form (an information set of ``k`` positions), and inspect
+    codewords whose information part is light:
+
+    * ``"lee-brickell"``: information weight 1 or 2 (Lee & Brickell, 1988);
+    * ``"stern"`` (default): the information set is split into halves X and
+      Y; subsets of size <= 2 from each half are matched on a window of ``l``
+      parity rows where the codeword must vanish (Stern, 1989), so codewords of
+      information weight up to 4 are found at the cost of sorting two lists.
+
+    The lightest codeword seen is an upper bound on the minimum distance; it
+    is not proven minimal.
 
     Parameters
     ----------
     M : ndarray or scipy.sparse matrix of shape (m, n), 0/1
     budget : int
-        Number of random information sets tried (the work is deterministic in
-        ``budget`` and ``seed``).
+        Number of random information sets tried (the result is deterministic
+        in ``budget`` and ``seed``).
     seed : int
         Seed of the ``numpy.random.Generator`` drawing the column orders.
-    p : {1, 2}
+    method : {"stern", "lee-brickell"}
+    max_pairs_side : int
+        Stern: halves larger than this use subsets of size <= 1 (memory bound).
     batch : int
         Permutations drawn per kernel call.
 
@@ -603,8 +764,9 @@ def information_set_search(M, budget: int, seed: int = 0, p: int = 2, batch: int
         Weight of the lightest nonzero codeword found (0 if the nullspace is trivial).
     witness : ndarray of shape (n,), uint8 or None
     """
-    if p not in (1, 2):
-        raise InputError(f"Information-set search supports p = 1 or 2; got {p}.")
+    if method not in _ISD_METHODS:
+        raise InputError(f"Unknown information-set search {method!r}; use 'stern' or "
+                         "'lee-brickell'.")
     _, _, (m, n) = _as_coo(M)
     hrows = pack_matrix(M)
     rng = np.random.default_rng(seed)
@@ -614,7 +776,8 @@ def information_set_search(M, budget: int, seed: int = 0, p: int = 2, batch: int
     while done < budget:
         b = min(batch, budget - done)
         perms = np.argsort(rng.random((b, n)), axis=1).astype(np.int64)
-        best = _isd_kernel(hrows, n, perms, p, best, witness)
+        best = _isd_kernel(hrows, n, perms, _ISD_METHODS[method], int(max_pairs_side), best,
+                           witness)
         done += b
     if best > n:
         return 0, None

@@ -8,9 +8,9 @@ import sys
 from pathlib import Path
 
 import pytest
+from test_io import malformed_files
 
 from ldpcmarg.cli import main
-from test_io import malformed_files
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -122,3 +122,11 @@ def test_build_errors(tmp_path, capsys):
     assert status == 2 and "--force" in err
     status, _, err = run(["build", "nosuch", "-o", str(p)], capsys)
     assert status != 0 and "Traceback" not in err
+
+
+def test_inspect_without_search_says_so(capsys):
+    status, out, _ = run(["inspect", "peg-504-3-6", "--dmin-budget", "0"], capsys)
+    assert status == 0
+    assert "minimum distance       not computed" in out
+    assert "bit degrees            3: 504 (100.0% of nodes, 100.0% of edges)" in out
+    assert "check degrees          6: 252" in out

@@ -1,4 +1,4 @@
-"""Constructions: degrees, girth, determinism, classical parameters, shipped-code reproducibility."""
+"""Constructions: degrees, girth, determinism, classical codes, shipped-code reproducibility."""
 
 from __future__ import annotations
 

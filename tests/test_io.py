@@ -95,7 +95,8 @@ def _random_H(draw_matrix):
     return M
 
 
-@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(max_examples=40, deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(arrays(np.uint8, st.tuples(st.integers(1, 9), st.integers(1, 40)),
               elements=st.integers(0, 1)),
        st.sampled_from(["txt", "mtx", "npz"]))

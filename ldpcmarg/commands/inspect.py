@@ -11,7 +11,7 @@ from ..errors import InputError
 from ..io import load_code, shipped_codes
 
 #: Default information-set budget of the minimum-distance search, by code length.
-AUTO_BUDGETS = ((1200, 200), (4096, 30))
+AUTO_BUDGETS = ((1200, 100), (4096, 20))
 
 
 def _auto_budget(n: int) -> int:
@@ -106,7 +106,7 @@ def format_report(rep: dict) -> str:
 @click.option("--json", "as_json", is_flag=True, help="Print JSON instead of a table.")
 @click.option("--dmin-budget", type=click.IntRange(min=0), default=None,
               help="Information sets tried by the minimum-distance search (0: skip the "
-                   "search). Default: 200 up to n = 1200, 30 up to n = 4096, else skipped.")
+                   "search). Default: 100 up to n = 1200, 20 up to n = 4096, else skipped.")
 @click.option("--dmin-seed", type=click.IntRange(min=0), default=0, show_default=True,
               help="Seed of the minimum-distance search.")
 @click.option("--exact-k", type=click.IntRange(min=0, max=40), default=26, show_default=True,
