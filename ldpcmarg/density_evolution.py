@@ -214,7 +214,7 @@ def _poly_text(arr: np.ndarray) -> str:
     return " + ".join(terms)
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class DegreeDistribution:
     """Edge-perspective degree distribution pair ``(lambda, rho)`` of an LDPC ensemble.
 
@@ -781,13 +781,14 @@ def _quantised_channel(sigma: float, K: int, step: float) -> np.ndarray:
     mu = 2.0 / sigma**2
     sd = 2.0 / sigma
     edges = (np.arange(-K, K + 2, dtype=np.float64) - 0.5) * step
-    # upper tail computed as ndtr(-z) for accuracy
-    cdf_lo = ndtr((edges[:-1] - mu) / sd)
-    sf_hi = ndtr(-(edges[1:] - mu) / sd)
-    p = 1.0 - cdf_lo - sf_hi
+    z_lo = (edges[:-1] - mu) / sd
+    z_hi = (edges[1:] - mu) / sd
+    # differences of the CDF below the mean and of the survival function above
+    # it, so that small tail masses keep their relative accuracy
+    p = np.where(z_hi <= 0.0, ndtr(z_hi) - ndtr(z_lo), ndtr(-z_lo) - ndtr(-z_hi))
     p = np.maximum(p, 0.0)
-    p[0] = ndtr((edges[1] - mu) / sd)
-    p[-1] = ndtr(-(edges[-2] - mu) / sd)
+    p[0] = ndtr(z_hi[0])  # saturation: everything below the grid
+    p[-1] = ndtr(-z_lo[-1])  # and above it
     return p / p.sum()
 
 
@@ -857,10 +858,11 @@ class _DiscretizedDE:
         is given); 0 = stalled; -1 = iteration cap.
         """
         K = self.K
-        bw = np.exp(-0.5 * self.step * np.arange(-K, K + 1, dtype=np.float64))
-        b_prev = float(np.dot(bw, _quantised_channel(sigma, K, self.step)))
-        contracting = 0
         ch = _quantised_channel(sigma, K, self.step)
+        # Bhattacharyya parameter E[exp(-L/2)] for the linear-regime rule
+        bw = np.exp(-0.5 * self.step * np.arange(-K, K + 1, dtype=np.float64))
+        b_prev = float(np.dot(bw, ch))
+        contracting = 0
         ch_f = np.fft.rfft(ch, self.nfft)
         lam = self.dd.lam
         dmax_v = max(self.vdeg)

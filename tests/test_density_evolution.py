@@ -405,6 +405,13 @@ def _run(argv, capsys):
 def test_cli_bec_regular_and_json(capsys):
     status, out, _ = _run(["threshold", "--regular", "3,6", "--channel", "bec"], capsys)
     assert status == 0 and "eps* = 0.42944" in out and "1 - R = 0.500000" in out
+    # node fractions of a mixed ensemble: 1/2 of the bits of degree 2, 1/2 of degree 4
+    # give edge fractions 1/3 and 2/3 (lambda_d = d L_d / sum_j j L_j)
+    status, out, _ = _run(["threshold", "--var-nodes", "2:0.5,4:0.5", "--check-nodes", "6",
+                           "--channel", "bec", "--json"], capsys)
+    d = json.loads(out)
+    assert d["ensemble"]["lambda"] == pytest.approx({"2": 1 / 3, "4": 2 / 3})
+    assert d["rate"] == pytest.approx(0.5)
     status, out, _ = _run(["threshold", "--var-edges", "2:0.3,3:0.4,8:0.3",
                            "--check-edges", "6:0.5,7:0.5", "--method", "gaussian",
                            "--json"], capsys)
