@@ -27,6 +27,8 @@ import concurrent.futures as cf
 import multiprocessing as mp
 import os
 import signal
+import threading
+import time
 from typing import Any
 
 from .errors import InputError, LdpcmargError, MissingExtraError
@@ -157,12 +159,26 @@ def _one_numba_thread() -> None:
             pass
 
 
+def _exit_with_parent() -> None:
+    """Leave when the coordinator is gone (e.g. killed with SIGKILL): no orphan workers."""
+    parent = mp.parent_process()
+    if parent is None:  # pragma: no cover - not started by multiprocessing
+        return
+
+    def watch():
+        parent.join()
+        os._exit(1)
+
+    threading.Thread(target=watch, name="ldpcmarg-parent-watch", daemon=True).start()
+
+
 def _init_worker(func, context):
     global _WORKER_FUNC, _WORKER_CTX
     # The coordinator handles Ctrl-C and stops the pool; workers ignore SIGINT.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     _WORKER_FUNC, _WORKER_CTX = func, context
     _one_numba_thread()
+    _exit_with_parent()
 
 
 def _run_in_worker(task):
@@ -181,6 +197,8 @@ class ProcessExecutor(Executor):
     """
 
     label = "process pool"
+    #: Seconds a running chunk may take to finish after Ctrl-C before it is terminated.
+    grace_seconds = 3.0
 
     def __init__(self, workers: int | None = None, start_method: str = "forkserver"):
         w = (os.cpu_count() or 1) if workers is None else int(workers)
@@ -220,8 +238,13 @@ class ProcessExecutor(Executor):
         if pool is None:
             return
         if abort:
-            procs = list(getattr(pool, "_processes", {}).values())
+            # queued chunks are dropped; running ones get a short grace period to finish
+            # (a clean exit frees the pool's locks), then are terminated
+            procs = list((getattr(pool, "_processes", None) or {}).values())
             pool.shutdown(wait=False, cancel_futures=True)
+            deadline = time.monotonic() + self.grace_seconds
+            for p in procs:
+                p.join(timeout=max(deadline - time.monotonic(), 0.0))
             for p in procs:
                 if p.is_alive():
                     p.terminate()

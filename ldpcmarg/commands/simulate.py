@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 import os
+import signal
 import sys
 import time
 
@@ -82,6 +83,10 @@ def _term_width() -> int:
         return os.get_terminal_size(sys.stderr.fileno()).columns
     except OSError:
         return 120
+
+
+def _terminate(signum, frame):
+    raise KeyboardInterrupt
 
 
 def _positive(name):
@@ -213,6 +218,7 @@ def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_f
             raise InputError(f"--cluster-timeout must be > 0; got {cluster_timeout}.")
         executor = DaskExecutor(cluster, connect_timeout=cluster_timeout)
     store = None
+    old_term = signal.signal(signal.SIGTERM, _terminate)  # SIGTERM stops as cleanly as Ctrl-C
     try:
         if store_path is not None:
             store = Store.open_writer(store_path, code_obj)
@@ -221,7 +227,13 @@ def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_f
                        chunk_frames=chunk_frames, random_codewords=random_codewords,
                        workers=workers, executor=executor, store=store, progress=progress,
                        confidence=confidence)
+    except KeyboardInterrupt:
+        if store is not None:
+            click.echo(f"\nInterrupted; finished chunks are kept in {store_path}. Run the same "
+                       "command again to continue.", err=True)
+        raise
     finally:
+        signal.signal(signal.SIGTERM, old_term)
         if store is not None:
             store.close()
         if executor is not None:
