@@ -64,8 +64,10 @@ class DecodeResult:
         """Posterior probabilities ``P(x_i = 1 | y)``, shape (F, n), float64 (None if hard)."""
         if self.posterior_llr is None:
             return None
-        # 1 / (1 + e^L) computed without overflow
-        return 0.5 * (1.0 - np.tanh(0.5 * self.posterior_llr))
+        # 1 / (1 + e^L); expit keeps relative precision for large |L|
+        from scipy.special import expit
+
+        return expit(-self.posterior_llr)
 
 
 def check_llr(llr, n: int, *, allow_inf: bool = False) -> tuple[np.ndarray, bool]:
@@ -131,10 +133,16 @@ class Decoder:
     @property
     def spec(self) -> str:
         """Canonical ``name:opt=value,...`` string with the non-default options."""
-        return format_decoder_spec(self.name, {
-            k: v for k, v in self.options.items()
-            if self.params[k].kind != "any" and v != self.params[k].default
-        })
+        shown = {}
+        scalar = str | int | float | bool
+        for k, v in self.options.items():
+            if v is None or not isinstance(v, scalar):
+                continue  # unset, or an array (no spec-string form)
+            default = self.params[k].default
+            if isinstance(default, scalar) and v == default:
+                continue
+            shown[k] = v
+        return format_decoder_spec(self.name, shown)
 
     def decode(self, llr) -> DecodeResult:
         """Decode a batch of frames.
