@@ -14,7 +14,8 @@ What it does
 * Decoders: flooding sum-product and normalised min-sum (alpha = 0.75), with
   float64 and float32 messages, on 1 and 2 threads, plus the layered variants.
 * Reference: ``experiments/c_reference/flooding.c`` -- a straightforward scalar
-  C flooding decoder (same early-stop rule, same iteration count semantics),
+  C flooding decoder (same early-stop rule, same iteration count semantics;
+  for min-sum also a branch-free variant, the trick the numba kernel uses),
   compiled here with ``gcc -O3 -march=native`` and called through ctypes on the
   very same LLR arrays. "2 threads" for C = two Python threads each decoding
   half of the frames (ctypes releases the GIL).
@@ -81,7 +82,8 @@ def build_c_reference():
     f.argtypes = [ctypes.c_int, ctypes.c_int, ctypes.c_int, P, P, P, P, P, ctypes.c_int,
                   ctypes.c_int, ctypes.c_double, P, P, P]
     f.restype = ctypes.c_int
-    version = subprocess.run([gcc, "--version"], capture_output=True, text=True).stdout.split("\n")[0]
+    version = subprocess.run([gcc, "--version"], capture_output=True, text=True).stdout
+    version = version.split("\n")[0]
     return f, version
 
 
@@ -173,16 +175,19 @@ def main(argv=None):
             if cfn is not None:
                 cdec = CDecoder(cfn, code, cmode, alpha, args.max_iter)
                 impls += [("C scalar", 1, cdec), ("C scalar", 2, cdec)]
+                if cmode == 1:
+                    cdec2 = CDecoder(cfn, code, 2, alpha, args.max_iter)
+                    impls += [("C branch-free", 1, cdec2)]
             for impl, th, dec in impls:
                 if impl.startswith("C"):
                     dec.decode(llr[:4], threads=th)
 
-                    def fn(dec=dec, th=th):
+                    def fn(dec=dec, th=th, llr=llr):
                         return dec.decode(llr, threads=th)
                 else:
                     dec.decode(llr[:4])          # JIT warm-up
 
-                    def fn(dec=dec):
+                    def fn(dec=dec, llr=llr):
                         r = dec.decode(llr)
                         return r.iterations, r.valid
                 rows.append((label, impl, th) + measure(fn, args.repeats))
@@ -192,7 +197,7 @@ def main(argv=None):
                     dec = lm.make_decoder(name, code, max_iter=args.max_iter, threads=th, **opts)
                     dec.decode(llr[:4])
 
-                    def fn(dec=dec):
+                    def fn(dec=dec, llr=llr):
                         r = dec.decode(llr)
                         return r.iterations, r.valid
                     rows.append((label, "numba float64", th) + measure(fn, args.repeats))

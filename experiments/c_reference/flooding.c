@@ -12,7 +12,10 @@
  *
  * mode 0: sum-product, c2v = 2 atanh(prod tanh(v/2)) with prefix/suffix
  *         products (product clamped to +-(1 - 2^-53));
- * mode 1: normalised min-sum, c2v = alpha * prod sign * min |v|.
+ * mode 1: normalised min-sum, c2v = alpha * prod sign * min |v|;
+ * mode 2: the same min-sum written branch-free (copysign for signs, fmin/fmax
+ *         for the two smallest magnitudes), the trick the numba kernel uses;
+ *         included so that the comparison also shows a tuned C loop.
  */
 #include <math.h>
 #include <stdint.h>
@@ -80,6 +83,20 @@ int decode_batch(int F, int n, int m, const int64_t *check_ptr, const int64_t *e
                         if (p < -pmax) p = -pmax;
                         c2v[a + k] = 2.0 * atanh(p);
                     }
+                } else if (mode == 2) {
+                    double min1 = INFINITY, min2 = INFINITY, sprod = 1.0;
+                    int idx = -1;
+                    for (int k = 0; k < d; k++) {
+                        double v = v2c[a + k];
+                        double x = fabs(v);
+                        sprod *= copysign(1.0, v);
+                        min2 = fmin(min2, fmax(min1, x));
+                        idx = x < min1 ? k : idx;
+                        min1 = fmin(min1, x);
+                    }
+                    const double m1 = alpha * min1 * sprod, m2 = alpha * min2 * sprod;
+                    for (int k = 0; k < d; k++)
+                        c2v[a + k] = (k == idx ? m2 : m1) * copysign(1.0, v2c[a + k]);
                 } else {
                     double min1 = INFINITY, min2 = INFINITY;
                     int idx = -1, neg = 0;

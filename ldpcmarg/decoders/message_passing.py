@@ -2,8 +2,8 @@
 
 All decoders work on the flat Tanner-graph arrays of
 :class:`~ldpcmarg.code.ParityCheckCode` (check-major edge order) and decode a
-batch of F frames at once; frames run in parallel (``numba.prange``), each
-frame owning its message buffers.
+batch of F frames at once; chunks of frames run in parallel (``numba.prange``
+over chunks), each chunk owning its message buffers.
 
 Conventions
 -----------
