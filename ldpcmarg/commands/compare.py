@@ -6,33 +6,16 @@ import json
 from pathlib import Path
 
 import click
-import numpy as np
 
 from ..errors import InputError
 from .posteriors import load_code_arg
 
 
 def parse_points(text: str, what: str) -> list[float]:
-    """SNR points from ``"1,2,3"`` or ``"start:stop:step"`` (stop included) or a mix."""
-    out: list[float] = []
-    for part in filter(None, (p.strip() for p in text.split(","))):
-        try:
-            if ":" in part:
-                a, b, c = (float(v) for v in part.split(":"))
-                if c <= 0 or b < a:
-                    raise ValueError
-                count = int(np.floor((b - a) / c + 1e-9)) + 1
-                out.extend(round(a + i * c, 12) for i in range(count))
-            else:
-                out.append(float(part))
-        except ValueError:
-            raise InputError(
-                f"Bad {what} point list {text!r}: use numbers separated by commas, or "
-                "start:stop:step with step > 0 and stop >= start."
-            ) from None
-    if not out:
-        raise InputError(f"The {what} point list is empty.")
-    return out
+    """SNR points: ``"1,2,3"`` or ``"start:step:stop"`` (the same grid syntax as ``simulate``)."""
+    from ..simulate import parse_grid
+
+    return parse_grid(text, option=f"--{what}")
 
 
 @click.command("compare")
@@ -40,7 +23,8 @@ def parse_points(text: str, what: str) -> list[float]:
 @click.option("-d", "--decoder", "decoders", multiple=True, required=True,
               help="Decoder spec NAME:key=value,... (repeat for each decoder).")
 @click.option("--ebn0",
-              help="BPSK-AWGN at these Eb/N0 points (dB; rate k/n): '1,2,3' or '1:3:0.5'.")
+              help="BPSK-AWGN at these Eb/N0 points (dB; rate k/n): '1,2,3' or "
+                   "start:step:stop such as '1:0.5:3'.")
 @click.option("--esn0", help="BPSK-AWGN at these Es/N0 points (dB).")
 @click.option("--sigma", help="BPSK-AWGN with these noise standard deviations.")
 @click.option("--bsc", help="BSC with these crossover probabilities.")
@@ -82,7 +66,7 @@ def command(code, decoders, ebn0, esn0, sigma, bsc, bec, frames, seed, reference
     if len(given) != 1:
         raise InputError("Give exactly one of --ebn0, --esn0, --sigma, --bsc or --bec.")
     (unit, text), = given.items()
-    points = parse_points(text, {"p": "BSC", "epsilon": "BEC"}.get(unit, unit))
+    points = parse_points(text, {"p": "bsc", "epsilon": "bec"}.get(unit, unit))
     if json_path and json_path != "-" and Path(json_path).exists() and not force:
         raise InputError(f"Output file {json_path} exists; pass --force to overwrite.")
     if plot_dir and not force:
