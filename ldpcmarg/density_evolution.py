@@ -440,7 +440,7 @@ def _finish(dd: DegreeDistribution, channel, method, parameter, thr, iters, tol,
         ebn0 = cap_ebn0 = gap = None
     else:
         limit = biawgn_shannon_sigma(R) if 0 < R < 1 else float("nan")
-        ebn0 = _sigma_to_ebn0(thr, R) if R > 0 else None
+        ebn0 = _sigma_to_ebn0(thr, R) if (R > 0 and thr > 0) else None
         cap_ebn0 = _sigma_to_ebn0(limit, R) if 0 < R < 1 else None
         gap = ebn0 - cap_ebn0 if (ebn0 is not None and cap_ebn0 is not None) else None
     return ThresholdResult(
@@ -592,6 +592,12 @@ def bec_threshold(dd, *, tol: float = 1e-7, max_iter: int = 1_000_000,
     -------
     ThresholdResult
         ``parameter = "epsilon"``; ``capacity_limit = 1 - R``.
+
+    Examples
+    --------
+    >>> res = bec_threshold(DegreeDistribution.regular(3, 6))
+    >>> round(res.threshold, 4), res.capacity_limit
+    (0.4294, 0.5)
     """
     t0 = time.perf_counter()
     dd = _as_dd(dd)
@@ -1056,6 +1062,11 @@ def awgn_threshold_discretized(dd, *, step: float = _DISC_DEFAULTS["step"],
     R = dd.design_rate
     if not 0.0 < R < 1.0:
         raise InputError(f"The ensemble's design rate is {R:.4g}; a threshold needs 0 < R < 1.")
+    if dd.lam[1] > 0:
+        # messages from degree-1 bits carry the channel LLR only: error probability
+        # >= lambda_1 Q(1/sigma) > 0 at every noise level
+        st["note"] = "degree-1 variable nodes: threshold 0"
+        return _finish(dd, "awgn", "discretized", "sigma", 0.0, 0, 0.0, st, t0)
     de = _DiscretizedDE(dd, st["step"], st["llr_max"])
     # stability condition lambda_2 rho'(1) exp(-1/(2 sigma^2)) < 1 (Richardson,
     # Shokrollahi & Urbanke 2001): beyond it BP cannot converge, so skip the run
@@ -1351,6 +1362,12 @@ def awgn_threshold_gaussian(dd, *, tol: float = 1e-5, max_iter: int = 20000,
     R = dd.design_rate
     if not 0.0 < R < 1.0:
         raise InputError(f"The ensemble's design rate is {R:.4g}; a threshold needs 0 < R < 1.")
+    settings = {"tol": tol, "max_iter": max_iter, "mean_max": mean_max, "stall": stall,
+                "phi": phi_form}
+    if dd.lam[1] > 0:
+        settings["note"] = "degree-1 variable nodes: threshold 0"
+        return _finish(dd, "awgn", "gaussian", "sigma", 0.0, 0, 0.0, settings, t0,
+                       approximate=True)
     rt, lt = _phi_table()
     neg_lt = -lt
     empty = np.zeros(0)
@@ -1362,8 +1379,6 @@ def awgn_threshold_gaussian(dd, *, tol: float = 1e-5, max_iter: int = 20000,
 
     hi = biawgn_shannon_sigma(R) * 1.0001
     lo, hi, it = _bisect(ok, 0.0, hi, tol)
-    settings = {"tol": tol, "max_iter": max_iter, "mean_max": mean_max, "stall": stall,
-                "phi": phi_form}
     return _finish(dd, "awgn", "gaussian", "sigma", lo, it, hi - lo, settings, t0,
                    approximate=True)
 

@@ -160,6 +160,19 @@ def test_bec_stability_condition_bounds_threshold():
     assert res.threshold <= 1.0 / (IRREG.lam[2] * rho_prime_1) + 1e-9
 
 
+def test_degree_one_bits_give_threshold_zero(capsys):
+    # a degree-1 bit never hears from the graph: its outgoing message is the
+    # channel alone, so the message error probability cannot reach 0
+    dd = DegreeDistribution.from_edge_fractions({1: 0.1, 3: 0.9}, {6: 1.0})
+    assert bec_threshold(dd).threshold == 0.0
+    assert bec_evolution(dd, 0.2, max_iter=200)[-1] >= 0.2 * 0.1
+    assert awgn_threshold_gaussian(dd).threshold == 0.0
+    assert awgn_threshold_discretized(dd).threshold == 0.0
+    status, out, _ = _run(["threshold", "--var-edges", "1:0.1,3:0.9", "--check-edges", "6"],
+                          capsys)
+    assert status == 0 and "sigma* = 0.00000" in out and "degree-1" in out
+
+
 def test_bec_evolution_below_and_above_threshold():
     dd = DegreeDistribution.regular(3, 6)
     below = bec_evolution(dd, 0.42, max_iter=400)

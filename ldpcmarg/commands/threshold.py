@@ -103,7 +103,10 @@ def format_result(res) -> str:
             lines.append(f"Shannon limit   sigma  = {res.capacity_limit:.5f}, Eb/N0 = "
                          f"{res.capacity_ebn0_db:.4f} dB (BI-AWGN capacity, numerical "
                          "integration)")
-            lines.append(f"gap             {res.gap_db:.4f} dB")
+            if res.gap_db is not None:
+                lines.append(f"gap             {res.gap_db:.4f} dB")
+    if "note" in res.settings:
+        lines.append(f"note            {res.settings['note']}")
     lines.append(f"iterations      {res.iterations} at the largest converging parameter")
     lines.append(f"time            {res.seconds:.2f} s")
     return "\n".join(lines)
