@@ -12,6 +12,7 @@ the table gives the best of ``--repeats`` wall-clock times for
                   map (what ``code.encoder`` builds);
 * ``encode``   -- encoding 1000 random messages with the packed parity map
                   (reported as frames per second);
+* ``girth``    -- girth and number of shortest cycles (BFS from every bit);
 * ``baseline`` -- the plain Gauss-Jordan kernel that XORs whole rows
                   (``gf2._row_reduce_kernel``), for comparison (skipped above
                   n = 4032 unless --baseline-all).
@@ -66,10 +67,11 @@ def main(argv=None):
     gf2.rank(w.H)
     SystematicEncoder(w).encode(np.zeros((2, w.k), dtype=np.uint8))
     baseline_rank(w.H)
+    w.girth_and_cycles()
 
     rng = np.random.default_rng(0)
     head = (f"{'n':>6} {'m':>6} {'rank':>6} {'k':>6} {'rank [s]':>9} {'encoder [s]':>11} "
-            f"{'encode [frames/s]':>18} {'baseline GJ [s]':>15}")
+            f"{'encode [frames/s]':>18} {'girth':>5} {'girth [s]':>9} {'baseline GJ [s]':>15}")
     print(head)
     print("-" * len(head))
     for n in args.sizes:
@@ -79,6 +81,9 @@ def main(argv=None):
         msgs = rng.integers(0, 2, size=(args.frames, enc.k), dtype=np.uint8)
         t_cw, cw = best_of(lambda enc=enc, msgs=msgs: enc.encode(msgs), args.repeats)
         assert np.all(code.is_codeword(cw)) and np.array_equal(enc.extract(cw), msgs)
+        t_g = time.perf_counter()
+        g, _cycles = C.random_regular(n, 3, 6, seed=0).girth_and_cycles()
+        t_g = time.perf_counter() - t_g
         if n <= 4032 or args.baseline_all:
             t_base, rb = best_of(lambda code=code: baseline_rank(code.H), 1)
             assert rb == r
@@ -86,7 +91,7 @@ def main(argv=None):
         else:
             base = f"{'skipped':>15}"
         print(f"{n:6d} {code.m:6d} {r:6d} {enc.k:6d} {t_rank:9.3f} {t_enc:11.3f} "
-              f"{args.frames / t_cw:18.0f} {base}", flush=True)
+              f"{args.frames / t_cw:18.0f} {g:5d} {t_g:9.3f} {base}", flush=True)
 
 
 if __name__ == "__main__":
