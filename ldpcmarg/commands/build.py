@@ -124,7 +124,7 @@ def build_code(construction: str, *, length=None, checks=None, bit_degree=None,
     raise InputError(f"Unknown construction {c!r}; accepted: {', '.join(_HELP)}.")
 
 
-@click.command("build", epilog="Constructions:\n\n" + "\n\n".join(
+@click.command("build", epilog="\b\nConstructions:\n" + "\n".join(
     f"  {k:10s} {v}" for k, v in _HELP.items()))
 @click.argument("construction", type=click.Choice(list(_HELP)), metavar="CONSTRUCTION")
 @click.option("-o", "--output", type=click.Path(dir_okay=False, path_type=Path), required=True,
