@@ -349,6 +349,20 @@ class ParityCheckCode:
     -----
     ``H`` may be rank deficient; the dimension is ``k = n - rank_GF2(H)``.
     Zero-weight columns (unprotected bits) and all-zero rows are legal.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from ldpcmarg.code import ParityCheckCode
+    >>> H = [[1, 0, 1, 0, 1, 0, 1], [0, 1, 1, 0, 0, 1, 1], [0, 0, 0, 1, 1, 1, 1]]
+    >>> code = ParityCheckCode(H, name="hamming-7-4")
+    >>> code.n, code.m, code.k, code.girth_and_cycles()
+    (7, 3, 4, (4, 3))
+    >>> cw = code.encoder.encode([[1, 0, 1, 1]])
+    >>> bool(code.is_codeword(cw)[0]), code.encoder.extract(cw).tolist()
+    (True, [[1, 0, 1, 1]])
+    >>> code.minimum_distance().label()
+    '3 (exact)'
     """
 
     def __init__(self, H, name: str = "", source: str = ""):

@@ -365,6 +365,13 @@ def peg(n: int, m: int, var_degrees, seed=0, check_degrees=None,
     ParityCheckCode
         Bit ``i`` has exactly ``var_degrees[i]`` edges and check ``c`` exactly
         ``check_degrees[c]``.
+
+    Examples
+    --------
+    >>> from ldpcmarg.construct import peg
+    >>> code = peg(504, 252, 3, seed=0)
+    >>> code.girth(), set(code.check_degrees.tolist())
+    (6, {6})
     """
     n, m = _int("n", n, 1), _int("m", m, 1)
     vd = np.full(n, var_degrees, dtype=np.int64) if np.ndim(var_degrees) == 0 else \

@@ -348,6 +348,13 @@ def load_code(name_or_path, name: str | None = None, fmt: str | None = None) -> 
     ------
     CodeFileError
         Missing or malformed file (the message names the file and line or entry).
+
+    Examples
+    --------
+    >>> from ldpcmarg.io import load_code
+    >>> code = load_code("tanner-155-64")
+    >>> code.n, code.k, code.girth()
+    (155, 64, 8)
     """
     if isinstance(name_or_path, ParityCheckCode):
         return name_or_path

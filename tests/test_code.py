@@ -224,3 +224,16 @@ def test_six_cycles_from_check_triangles(name):
     assert O.max() <= 1  # no 4-cycles
     six = int(np.trace(O @ O @ O)) // 6 - sum(comb(int(d), 3) for d in code.var_degrees)
     assert code.girth_and_cycles() == (6, six)
+
+
+def test_docstring_examples():
+    import doctest
+
+    import ldpcmarg.code
+    import ldpcmarg.construct
+    import ldpcmarg.gf2
+    import ldpcmarg.io
+    for mod in (ldpcmarg.code, ldpcmarg.construct, ldpcmarg.io, ldpcmarg.gf2):
+        res = doctest.testmod(mod, optionflags=doctest.NORMALIZE_WHITESPACE)
+        assert res.failed == 0, mod.__name__
+    assert doctest.testmod(ldpcmarg.code).attempted >= 5
