@@ -466,6 +466,10 @@ def test_inputs_are_validated():
         DualAscent(code, schedule="fast")
     with pytest.raises(InputError):
         DualCandidateOracle(code, tol=-1.0)
+    with pytest.raises(InputError, match="accept_fraction"):
+        DualCandidateOracle(code, accept_fraction=1.0)
+    with pytest.raises(InputError, match="fallback"):
+        DualCandidateOracle(code, fallback="glpk")
 
 
 def exact_lifted_marginals(code, lam):

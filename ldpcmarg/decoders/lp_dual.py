@@ -893,6 +893,8 @@ class DualCandidateOracle:
         (measured several times faster on these degenerate LPs);
         ``"simplex"``: HiGHS's default first solve, then hot simplex after
         adding columns.
+    accept_fraction : float in [0, 1)
+        Default multiplicative acceptance for calls that pass ``tau`` (see :meth:`solve`).
     lc : LocalCodewords, optional
         ``code.local_codewords()`` when already computed.
 
@@ -909,7 +911,7 @@ class DualCandidateOracle:
     def __init__(self, code, fallback="highs", *, tol: float = 1e-9, rel_tol: float = 1e-9,
                  max_sweeps: int = 100, slack: float = 3.0, schedule: str = "anneal",
                  restricted: bool = True, max_rounds: int = 20, restricted_method: str = "ipm",
-                 lc=None):
+                 accept_fraction: float = 0.0, lc=None):
         if tol < 0 or rel_tol < 0:
             raise InputError(f"Tolerances must be >= 0; got tol={tol}, rel_tol={rel_tol}.")
         if slack < 0:
@@ -929,6 +931,9 @@ class DualCandidateOracle:
                 f"restricted_method must be 'ipm' or 'simplex'; got {restricted_method!r}."
             )
         self.restricted_method = restricted_method
+        if not 0.0 <= accept_fraction < 1.0:
+            raise InputError(f"accept_fraction must be in [0, 1); got {accept_fraction!r}.")
+        self.accept_fraction = float(accept_fraction)
         self.price_tol = 1e-9
         if self.max_rounds < 1:
             raise InputError(f"max_rounds must be >= 1; got {max_rounds}.")
@@ -1064,7 +1069,8 @@ class DualCandidateOracle:
     # ------------------------------------------------------------------ solve
     def solve(self, bit_costs, local_costs=None, *, warm: bool = True,
               time_limit: float | None = None, tol: float | None = None, tau=None,
-              gap_target: float | None = None, accept_fraction: float = 0.0) -> OracleSolution:
+              gap_target: float | None = None, accept_fraction: float | None = None
+              ) -> OracleSolution:
         """Minimise ``<bit_costs, tau_bits> + <local_costs, tau_local>`` over ``L``.
 
         Parameters
@@ -1089,9 +1095,10 @@ class DualCandidateOracle:
             without building any candidate: ``tau`` is then a ``gap_target``-approximate
             minimiser, and ``certified_gap(..., tau, bound) <= gap_target`` certifies
             the Frank–Wolfe iterate.
-        accept_fraction : float in [0, 1)
-            With ``tau``: accept a candidate ``s`` once ``<c, s> - bound <=
-            accept_fraction * (<c, tau> - bound)`` (or the absolute tolerance).
+        accept_fraction : float in [0, 1), optional
+            (Default: the constructor's ``accept_fraction``.) With ``tau``: accept
+            a candidate ``s`` once ``<c, s> - bound <= accept_fraction * (<c, tau>
+            - bound)`` (or the absolute tolerance).
             Then ``<c, tau - s> >= (1 - accept_fraction) * (<c, tau> - LP*)``: a
             multiplicative approximate oracle, enough for Frank–Wolfe's
             convergence guarantees with a constant factor (Lacoste-Julien & Jaggi,
@@ -1109,6 +1116,8 @@ class DualCandidateOracle:
         accept = self.tol if tol is None else float(tol)
         if not accept >= 0:
             raise InputError(f"The oracle tolerance must be >= 0; got {tol!r}.")
+        if accept_fraction is None:
+            accept_fraction = self.accept_fraction if tau is not None else 0.0
         if not 0.0 <= accept_fraction < 1.0:
             raise InputError(f"accept_fraction must be in [0, 1); got {accept_fraction!r}.")
         gtau = None
