@@ -194,12 +194,15 @@ def _eliminate_kernel(rows, ncols, full, pivots):
     """Elimination in place on packed rows in natural column order.
 
     Assumes ``rows`` is C-contiguous uint64 of shape (r, ceil(ncols/64)).
-    With ``full`` true it produces the reduced row echelon form (Gauss-Jordan,
-    rows above the pivot are cleared too); otherwise only rows below the pivot
-    are cleared (enough for the rank). Because columns are tried left to right,
-    the pivot row is zero left of its pivot, so only words from the pivot's
-    word onwards are XORed. ``pivots[r]`` receives the pivot column of row
-    ``r``; returns the rank.
+    Forward elimination clears each pivot column below the pivot (enough for
+    the rank). With ``full`` true a back substitution from the last pivot up
+    then clears the pivot columns above, giving the reduced row echelon form;
+    on sparse ``H`` this is about five times faster than clearing above and
+    below at each pivot (Gauss-Jordan), because the rows stay sparse during
+    the forward pass (experiments/bench_gf2_encoder.py). Because columns are
+    tried left to right, a pivot row is zero left of its pivot, so only
+    words from the pivot's word onwards are XORed. ``pivots[r]`` receives the
+    pivot column of row ``r``; returns the rank.
     """
     nrows, words = rows.shape
     rank = 0
@@ -221,13 +224,21 @@ def _eliminate_kernel(rows, ncols, full, pivots):
                 tmp = rows[piv, j]
                 rows[piv, j] = rows[rank, j]
                 rows[rank, j] = tmp
-        start = 0 if full else rank + 1
-        for r in range(start, nrows):
-            if r != rank and (rows[r, w] & bit):
+        for r in range(rank + 1, nrows):
+            if rows[r, w] & bit:
                 for j in range(w, words):
                     rows[r, j] ^= rows[rank, j]
         pivots[rank] = col
         rank += 1
+    if full:
+        for r in range(rank - 1, 0, -1):
+            col = pivots[r]
+            w = col >> 6
+            bit = one << np.uint64(col & 63)
+            for q in range(r):
+                if rows[q, w] & bit:
+                    for j in range(w, words):
+                        rows[q, j] ^= rows[r, j]
     return rank
 
 
