@@ -334,11 +334,12 @@ def _fit_check_group(B, pats, Q, steps: int = 3):
     return B
 
 
-def consistent_interior_point(code, lc, tau_bits, tau_local, *, theta_min: float = 0.0):
+def consistent_interior_point(code, lc, tau_bits, tau_local, *, theta_min: float = 0.0,
+                              accept: float = 1e-10):
     """Turn approximate beliefs into a point of the local polytope with all entries > 0.
 
     Bit targets ``q`` are the given ``tau_bits`` (averaged over chains of
-    degree-2 checks, which force equal marginals). Every check of degree
+    degree-2 checks, which force equal marginals). Every other check of degree
     ``d >= 3`` is first fitted to ``q`` by a few Newton steps of a
     multiplicative update (:func:`_fit_check_group`; tiny entries keep their
     relative accuracy, which the Frank–Wolfe gap is sensitive to). Where that
@@ -360,6 +361,11 @@ def consistent_interior_point(code, lc, tau_bits, tau_local, *, theta_min: float
         Approximate check beliefs (each block summing to about 1).
     theta_min : float
         Least weight of the uniform point.
+    accept : float
+        Checks whose beliefs are positive and match ``q`` within ``accept``
+        (converged message passing: about 1e-12) are kept unchanged; the point
+        is then in ``L`` up to that rounding, which moves ``<grad F, tau>`` by
+        at most ``accept`` times the largest gradient entry (about 700 nats).
 
     Returns
     -------
@@ -403,8 +409,12 @@ def consistent_interior_point(code, lc, tau_bits, tau_local, *, theta_min: float
             B = b[idx].copy()
             s = B.sum(axis=1, keepdims=True)
             B = np.where(s > 0, B / np.where(s > 0, s, 1.0), 1.0 / size)
-            B = _fit_check_group(B, pats, Q)
             P = pats.astype(np.float64)
+            # beliefs of converged message passing are consistent to rounding: keep
+            # them as they are (refitting would perturb tiny entries, see above)
+            keep = (np.max(np.abs(B @ P - Q), axis=1) <= accept) & np.all(B > 0, axis=1)
+            if not np.all(keep):
+                B[~keep] = _fit_check_group(B[~keep], pats, Q[~keep])
             resid = np.max(np.abs(B @ P - Q), axis=1)
             bad = (resid > 1e-11) | np.any(B <= 0, axis=1)
             R = B
