@@ -13,7 +13,7 @@
  * mode 0: sum-product, c2v = 2 atanh(prod tanh(v/2)) with prefix/suffix
  *         products (product clamped to +-(1 - 2^-53));
  * mode 1: normalised min-sum, c2v = alpha * prod sign * min |v|;
- * mode 2: the same min-sum written branch-free (copysign for signs, fmin/fmax
+ * mode 2: the same min-sum written branch-free (copysign for signs, selects
  *         for the two smallest magnitudes), the trick the numba kernel uses;
  *         included so that the comparison also shows a tuned C loop;
  * mode 3: sum-product with tanh(x/2) = (1 - e^-x)/(1 + e^-x) and
@@ -110,9 +110,12 @@ int decode_batch(int F, int n, int m, const int64_t *check_ptr, const int64_t *e
                         double v = v2c[a + k];
                         double x = fabs(v);
                         sprod *= copysign(1.0, v);
-                        min2 = fmin(min2, fmax(min1, x));
+                        /* ternaries, not fmin/fmax: those keep NaN semantics and
+                           are not inlined as single instructions at -O3 */
+                        const double hi = x > min1 ? x : min1;
+                        min2 = hi < min2 ? hi : min2;
                         idx = x < min1 ? k : idx;
-                        min1 = fmin(min1, x);
+                        min1 = x < min1 ? x : min1;
                     }
                     const double m1 = alpha * min1 * sprod, m2 = alpha * min2 * sprod;
                     for (int k = 0; k < d; k++)
