@@ -637,7 +637,8 @@ def simulate(code, decoders, snr, *, snr_kind: str = "ebn0_db", seed: int = 1,
     if snr_kind not in SNR_KINDS:
         raise InputError(f"Unknown SNR kind {snr_kind!r}; accepted: {', '.join(SNR_KINDS)}.")
     stop = stop or StopRule()
-    _ = stats.clopper_pearson(0, 1, confidence)  # validates the level
+    if not 0.0 < float(confidence) < 1.0:
+        raise InputError(f"The confidence level must be in (0, 1); got {confidence!r}.")
     if isinstance(seed, bool) or not isinstance(seed, int | np.integer) or seed < 0:
         raise InputError(f"The seed must be an integer >= 0; got {seed!r}.")
     if isinstance(decoders, str):

@@ -42,11 +42,13 @@ def _check_level(confidence: float) -> float:
 
 
 def _beta_interval(x: float, n: float, confidence: float) -> tuple[float, float]:
-    from scipy.stats import beta
+    # beta quantiles via the inverse regularised incomplete beta function
+    # (scipy.special is far lighter to import than scipy.stats)
+    from scipy.special import betaincinv
 
     a = (1.0 - confidence) / 2.0
-    lo = 0.0 if x <= 0 else float(beta.ppf(a, x, n - x + 1.0))
-    hi = 1.0 if x >= n else float(beta.ppf(1.0 - a, x + 1.0, n - x))
+    lo = 0.0 if x <= 0 else float(betaincinv(x, n - x + 1.0, a))
+    hi = 1.0 if x >= n else float(betaincinv(x + 1.0, n - x, 1.0 - a))
     return lo, hi
 
 
