@@ -557,3 +557,18 @@ def test_flatten_removes_per_check_affine_costs(seed):
     np.testing.assert_allclose(da.mu, -beta, atol=1e-9)
     opt, _ = lp_optimum(code, g, h)
     assert da.run(g, h, max_sweeps=0).bound <= opt + 1e-9
+
+
+def test_best_start_keeps_the_better_multipliers(seed):
+    rng = np.random.default_rng(1300 + seed)
+    code = random_regular_code(24, 3, 6, 11)
+    g, h = random_costs(code, rng)
+    da = DualAscent(code)
+    da.mu[:] = 5.0 * rng.normal(size=code.num_edges)  # stale multipliers
+    before = lagrangian_bound(code, None, g, h, da.mu)
+    other = DualAscent(code)
+    other.flatten(h)
+    flat = lagrangian_bound(code, None, g, h, other.mu)
+    kept = da.best_start(g, h)
+    assert kept == pytest.approx(max(before, flat), abs=1e-12)
+    assert kept == pytest.approx(lagrangian_bound(code, None, g, h, da.mu), abs=1e-12)
