@@ -866,7 +866,9 @@ class DualCandidateOracle:
     ``accept_fraction`` (see :meth:`solve`). Each call
 
     1. runs :class:`DualAscent` from the previous call's multipliers (a warm
-       start across Frank–Wolfe iterations); with ``tau`` and ``gap_target``
+       start across Frank–Wolfe iterations) or from the least-squares
+       flattening of the new costs when that is better
+       (``flatten_start``); with ``tau`` and ``gap_target``
        it stops as soon as the caller's point is certified and returns it;
     2. tries primal candidates, cheapest first: the Lagrangian solution when it
        is consistent (then exactly optimal), the integral point of the bit
