@@ -184,6 +184,24 @@ def info_positions(code) -> np.ndarray:
     return np.flatnonzero(mask).astype(np.int64)
 
 
+def _all_zero_llr(channel, frames: int, n: int, rng: np.random.Generator) -> np.ndarray:
+    """Channel LLRs of the all-zero codeword, shape (frames, n), float64.
+
+    For BPSK-AWGN this is computed in place (``L = (2/sigma^2)(1 + sigma z)``),
+    bit-identical to ``channel.sample_llr(zeros, rng)`` but without its
+    temporaries; other channels go through ``sample_llr``.
+    """
+    from .channels import AWGNChannel
+
+    if type(channel) is AWGNChannel:
+        llr = rng.standard_normal((frames, n))
+        llr *= channel.sigma
+        llr += 1.0
+        llr *= 2.0 / channel.sigma**2
+        return llr
+    return channel.sample_llr(np.zeros((frames, n), dtype=np.uint8), rng)
+
+
 def _point_channel(kind: str, snr_kind: str, value: float, rate: float):
     if snr_kind == "ebn0_db":
         return make_channel("awgn", ebn0_db=value, rate=rate)
@@ -315,13 +333,13 @@ def run_chunk(ctx: SweepContext, task: ChunkTask) -> ChunkResult:
         msgs = np.random.default_rng(msg_ss).integers(0, 2, size=(F, len(info)), dtype=np.uint8)
         cw = np.ascontiguousarray(enc.encode(msgs), dtype=np.uint8)
         if channel.symmetric:
-            llr = channel.sample_llr(np.zeros((F, n), dtype=np.uint8), rng)
+            llr = _all_zero_llr(channel, F, n, rng)
             llr *= 1.0 - 2.0 * cw
         else:
             llr = channel.sample_llr(cw, rng)
     else:
         cw = None
-        llr = channel.sample_llr(np.zeros((F, n), dtype=np.uint8), rng)
+        llr = _all_zero_llr(channel, F, n, rng)
     llr = np.ascontiguousarray(llr, dtype=np.float64)
     t_channel = time.perf_counter() - t_start
     all_info = len(info) == n

@@ -50,6 +50,17 @@ def test_point_key_is_value_based():
     assert point_key(0.1 + 0.2) == point_key(0.3)
 
 
+def test_fast_all_zero_llr_is_bit_identical_to_channel():
+    from ldpcmarg.channels import make_channel
+    from ldpcmarg.simulate import _all_zero_llr
+
+    for ch in (make_channel("awgn", ebn0_db=1.7, rate=0.5), make_channel("bsc", p=0.1),
+               make_channel("bec", epsilon=0.3)):
+        fast = _all_zero_llr(ch, 50, 33, np.random.default_rng(8))
+        ref = ch.sample_llr(np.zeros((50, 33), dtype=np.uint8), np.random.default_rng(8))
+        assert fast.dtype == np.float64 and np.array_equal(fast, ref)
+
+
 # ------------------------------------------------------------------ outside world
 def test_uncoded_bpsk_matches_textbook():
     # One all-zero check row: rank 0, so k = n and rate 1, and Eb/N0 = Es/N0.
