@@ -121,7 +121,11 @@ def _draw(rng, n, num_local, dense):
     return g, h
 
 
-def bench_code(code, reps, cap, out):
+HOT_VARIANTS = ("primal", "dual", "choose", "primal+fallback")
+
+
+def bench_code(code, reps, cap, out, hot_variants=HOT_VARIANTS,
+               cold_methods=("dual", "primal", "ipm")):
     rng = np.random.default_rng(12345)
     n = code.n
     probe = LocalPolytopeLP(code)
@@ -133,7 +137,7 @@ def bench_code(code, reps, cap, out):
         label = "dense local costs" if dense else "bit costs only"
         # ---- cold solves
         cold = {}
-        for method in ("dual", "primal", "ipm"):
+        for method in cold_methods:
             lp = LocalPolytopeLP(code, cold_method=method)
             walls, cpus, its = [], [], []
             for _ in range(reps):
@@ -148,11 +152,16 @@ def bench_code(code, reps, cap, out):
             rows.append((label, f"cold {method}", "-", median_or_none(walls), cold[method],
                          int(statistics.median(its)), None, None))
         best_cold = min((v for v in cold.values() if v is not None), default=None)
-        dual_cold = cold["dual"]
+        dual_cold = cold.get("dual")
         # ---- hot re-solves
-        for hot in ("primal", "dual", "choose"):
+        for hot in hot_variants:
             for eps in (0.001, 0.01, 0.1, "new frame"):
-                lp = LocalPolytopeLP(code, hot_method=hot)
+                if hot == "primal+fallback":
+                    # the default oracle: hot primal, cold again after max(1000, rows) iterations
+                    lp = LocalPolytopeLP(code)
+                else:
+                    # raw hot starts, never given up
+                    lp = LocalPolytopeLP(code, hot_method=hot, hot_iteration_limit=None)
                 c_g, c_h = _draw(rng, n, L, dense)
                 lp.solve(c_g, c_h, warm=False)
                 k = reps if eps in ("new frame", 0.1) else 4 * reps
@@ -173,7 +182,8 @@ def bench_code(code, reps, cap, out):
                 med = median_or_none(cpus)
                 r_dual = dual_cold / med if (med and dual_cold) else None
                 r_best = best_cold / med if (med and best_cold) else None
-                rows.append((label, f"hot {hot}", str(eps), median_or_none(walls), med,
+                rows.append((label, f"hot {hot}" if hot != "primal+fallback" else "hot+fallbk",
+                             str(eps), median_or_none(walls), med,
                              int(statistics.median(its)), r_dual, r_best))
     out(f"{'costs':<18} {'solve':<12} {'change':<10} {'wall/call':>10} {'CPU/call':>10} "
         f"{'simplex it':>10} {'cold dual/hot':>13} {'best cold/hot':>13}")
@@ -214,6 +224,10 @@ def main(argv=None):
     ap.add_argument("--reps", type=int, default=5)
     ap.add_argument("--cap", type=float, default=20.0, help="seconds per call before giving up")
     ap.add_argument("--no-mip", action="store_true", help="skip the ML-MIP comparison")
+    ap.add_argument("--hot", nargs="+", choices=HOT_VARIANTS, default=list(HOT_VARIANTS),
+                    help="hot-start variants to time")
+    ap.add_argument("--cold", nargs="+", choices=("dual", "primal", "ipm"),
+                    default=["dual", "primal", "ipm"], help="cold methods to time")
     args = ap.parse_args(argv)
     out = print
     out(f"highspy {highspy.HIGHS_VERSION_MAJOR}.{highspy.HIGHS_VERSION_MINOR}."
@@ -223,7 +237,7 @@ def main(argv=None):
         code, provenance = get_code(n)
         out(f"\n== n = {n}: {provenance}, {code.summary()['edges']} edges")
         t0 = time.perf_counter()
-        bench_code(code, args.reps, args.cap, out)
+        bench_code(code, args.reps, args.cap, out, tuple(args.hot), tuple(args.cold))
         out(f"(section took {time.perf_counter() - t0:.0f} s)")
     if not args.no_mip:
         bench_mip(out)

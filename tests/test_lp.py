@@ -381,3 +381,25 @@ def test_oracle_pickles_after_use():
     clone = pickle.loads(pickle.dumps(lp))
     again = clone.solve(g)  # cold on the other side, same optimum
     assert again.optimal and again.objective == pytest.approx(first.objective, abs=1e-12)
+
+
+def test_hot_start_gives_up_and_solves_cold():
+    H = CODES["reg36-n18"]
+    code = ParityCheckCode(H)
+    A, b, bounds, L = dense_lp(H)
+    lp = LocalPolytopeLP(code, hot_iteration_limit=1)
+    rng = np.random.default_rng(12)
+    c = rng.normal(size=code.n + L)
+    first = lp.solve(c[: code.n], c[code.n:], warm=True)  # no basis yet: cold
+    assert first.method == "cold-ipm"
+    seen = set()
+    for _ in range(4):
+        c = rng.normal(size=code.n + L)  # a new, unrelated objective
+        sol = lp.solve(c[: code.n], c[code.n:], warm=True)
+        ref = linprog(c, A_eq=A, b_eq=b, bounds=bounds, method="highs")
+        assert sol.optimal and sol.objective == pytest.approx(ref.fun, abs=1e-8)
+        seen.add(sol.method)
+    # an unrelated objective needs more than one hot iteration at least once
+    assert "hot+cold-ipm" in seen
+    with pytest.raises(InputError, match="hot_iteration_limit"):
+        LocalPolytopeLP(code, hot_iteration_limit=0)

@@ -133,6 +133,10 @@ class LPSolution:
         an interior-point solve (0 for a MIP).
     seconds : float
         Wall-clock time of this call, in seconds.
+    method : str
+        How it was solved: ``"hot"``, ``"cold-dual"``, ``"cold-primal"``,
+        ``"cold-ipm"``, ``"hot+cold-<m>"`` (a hot start given up after
+        ``hot_iteration_limit`` iterations, then solved cold) or ``"mip"``.
     """
 
     bits: np.ndarray
@@ -142,6 +146,7 @@ class LPSolution:
     optimal: bool
     simplex_iterations: int
     seconds: float
+    method: str = ""
 
     @property
     def has_solution(self) -> bool:
@@ -177,6 +182,12 @@ class LocalPolytopeLP:
         local-codeword costs, interior point + crossover otherwise.
     hot_method : {"primal", "dual", "choose"}
         Simplex variant for a hot re-solve from the previous basis.
+    hot_iteration_limit : int, "auto" or None
+        Give up a hot start after this many simplex iterations and solve cold
+        instead (None: never). ``"auto"`` = ``max(1000, number of rows)``.
+        Measured: after a large objective change (a new frame) a hot start can
+        take 50x longer than a cold interior-point solve at n = 1008, while a
+        1 % change needs a few hundred iterations.
 
     Attributes
     ----------
@@ -206,7 +217,8 @@ class LocalPolytopeLP:
 
     def __init__(self, code, *, max_check_degree: int = DEFAULT_MAX_CHECK_DEGREE,
                  integral_bits: bool = False, threads: int = 1,
-                 cold_method: str = "auto", hot_method: str = "primal"):
+                 cold_method: str = "auto", hot_method: str = "primal",
+                 hot_iteration_limit: int | str | None = "auto"):
         if cold_method not in _COLD_METHODS:
             raise InputError(f"cold_method must be one of {_COLD_METHODS}; got {cold_method!r}.")
         if hot_method not in _HOT_METHODS:
@@ -219,6 +231,14 @@ class LocalPolytopeLP:
         self.threads = int(threads)
         self.cold_method = cold_method
         self.hot_method = hot_method
+        if hot_iteration_limit == "auto":
+            hot_iteration_limit = max(1000, code.m + code.num_edges)
+        if hot_iteration_limit is not None and (
+                isinstance(hot_iteration_limit, bool) or int(hot_iteration_limit) < 1):
+            raise InputError("hot_iteration_limit must be 'auto', None or an integer >= 1; "
+                             f"got {hot_iteration_limit!r}.")
+        self.hot_iteration_limit = (None if hot_iteration_limit is None
+                                    else int(hot_iteration_limit))
         self.local_codewords = code.local_codewords(self.max_check_degree)
         self.n = int(code.n)
         self.m = int(code.m)
@@ -431,33 +451,33 @@ class LocalPolytopeLP:
         if not warm and self._has_basis:
             h.clearSolver()
             self._has_basis = False
+        cold = self.cold_method
+        if cold == "auto":
+            cold = "dual" if local_costs is None else "ipm"
+        deadline = h.getRunTime() + time_limit if time_limit is not None else None
         if self.integral_bits:
             method = "mip"
         elif hot:
-            _set_option(h, "solver", "simplex")
-            _set_option(h, "simplex_strategy", _SIMPLEX_STRATEGY[self.hot_method])
             method = "hot"
         else:
-            method = self.cold_method
-            if method == "auto":
-                method = "dual" if local_costs is None else "ipm"
-            if method == "ipm":
-                _set_option(h, "solver", "ipm")
-                _set_option(h, "run_crossover", "on")
-            else:
-                _set_option(h, "solver", "simplex")
-                _set_option(h, "simplex_strategy", _SIMPLEX_STRATEGY[method])
-        # time_limit counts the object's cumulative run time (HIGHS-NOTES pitfall 2)
-        limit = h.getRunTime() + time_limit if time_limit is not None else highspy.kHighsInf
-        _set_option(h, "time_limit", float(limit))
-        run_status = h.run()
-        seconds = time.perf_counter() - t0
+            method = f"cold-{cold}"
+        run_status = self._run(h, method, deadline)
         model_status = h.getModelStatus()
+        iters_before = 0
+        if method == "hot" and model_status == highspy.HighsModelStatus.kIterationLimit:
+            # the hot start wandered off: start again from scratch
+            iters_before = max(int(h.getInfo().simplex_iteration_count), 0)
+            h.clearSolver()
+            self._has_basis = False
+            method = f"hot+cold-{cold}"
+            run_status = self._run(h, f"cold-{cold}", deadline)
+            model_status = h.getModelStatus()
+        seconds = time.perf_counter() - t0
         info = h.getInfo()
         iters = 0
         if not self.integral_bits:
-            iters = max(int(info.simplex_iteration_count), 0)
-            if method == "ipm":
+            iters = iters_before + max(int(info.simplex_iteration_count), 0)
+            if method.endswith("ipm"):
                 iters += max(int(info.crossover_iteration_count), 0)
         optimal = (model_status == highspy.HighsModelStatus.kOptimal
                    and run_status != highspy.HighsStatus.kError)
@@ -480,13 +500,13 @@ class LocalPolytopeLP:
             local = np.full(self.num_local, np.nan)
             objective = float("nan")
         if optimal and not self.integral_bits:
-            if method == "ipm":
+            if method.endswith("ipm"):
                 # keep the crossover basis for the next simplex run (HIGHS-NOTES pitfall 3)
                 h.setBasis(h.getBasis())
             self._has_basis = True
         elif model_status == highspy.HighsModelStatus.kTimeLimit and not self.integral_bits:
             # a simplex stopped by the clock still holds a valid basis; an IPM does not
-            self._has_basis = method != "ipm" and bool(info.basis_validity)
+            self._has_basis = not method.endswith("ipm") and bool(info.basis_validity)
             if not self._has_basis:
                 h.clearSolver()
         elif not self.integral_bits:
@@ -494,7 +514,32 @@ class LocalPolytopeLP:
             self._has_basis = False
         self._last_optimal = bool(optimal) and not self.integral_bits
         return LPSolution(bits=bits, local=local, objective=objective, status=status_text,
-                          optimal=bool(optimal), simplex_iterations=iters, seconds=seconds)
+                          optimal=bool(optimal), simplex_iterations=iters, seconds=seconds,
+                          method=method)
+
+    def _run(self, h, method: str, deadline: float | None):
+        """Set the options of ``method`` and run HiGHS once; return the run status."""
+        highspy = _highspy()
+        iteration_limit = highspy.kHighsIInf
+        if method == "hot":
+            _set_option(h, "solver", "simplex")
+            _set_option(h, "simplex_strategy", _SIMPLEX_STRATEGY[self.hot_method])
+            if self.hot_iteration_limit is not None:
+                iteration_limit = self.hot_iteration_limit
+        elif method == "cold-ipm":
+            _set_option(h, "solver", "ipm")
+            _set_option(h, "run_crossover", "on")
+        elif method.startswith("cold-"):
+            _set_option(h, "solver", "simplex")
+            _set_option(h, "simplex_strategy", _SIMPLEX_STRATEGY[method[5:]])
+        if not self.integral_bits:
+            _set_option(h, "simplex_iteration_limit", int(iteration_limit))
+        # time_limit counts the object's cumulative run time (HIGHS-NOTES pitfall 2)
+        limit = deadline if deadline is not None else highspy.kHighsInf
+        if deadline is not None and limit <= h.getRunTime():
+            limit = h.getRunTime() + 1e-9
+        _set_option(h, "time_limit", float(limit))
+        return h.run()
 
 
 def _status_text(highspy, model_status, fallback: str) -> str:
