@@ -180,3 +180,17 @@ def test_sigkill_then_resume_gives_uninterrupted_counts(tmp_path):
     resumed, fresh = json.loads(js_resumed.read_text()), json.loads(js_clean.read_text())
     assert counted(resumed) == counted(fresh)
     assert all(p["stop"] == "frame_errors" for p in fresh["points"])
+
+
+def test_esn0_grid_and_random_codewords(tmp_path, capsys):
+    js = tmp_path / "e.json"
+    status, out, err = run_cli(["simulate", "hamming-7-4", "-d", "sum-product", "--esn0", "0,2",
+                                "--random-codewords", "--frame-errors", "10", "--max-frames",
+                                "1000", "--workers", "1", "-q", "--json", js], capsys)
+    assert status == 0, err
+    doc = json.loads(js.read_text())
+    assert doc["channel"]["codewords"] == "random"
+    for p, esn0 in zip(doc["points"], (0.0, 2.0), strict=True):
+        # Eb/N0 = Es/N0 - 10 log10(k/n) (definition, DESIGN.md section 2)
+        assert p["esn0_db"] == esn0
+        assert p["ebn0_db"] == pytest.approx(esn0 - 10 * __import__("math").log10(4 / 7))
