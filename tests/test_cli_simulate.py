@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import math
 import os
 import signal
 import sqlite3
@@ -193,4 +194,4 @@ def test_esn0_grid_and_random_codewords(tmp_path, capsys):
     for p, esn0 in zip(doc["points"], (0.0, 2.0), strict=True):
         # Eb/N0 = Es/N0 - 10 log10(k/n) (definition, DESIGN.md section 2)
         assert p["esn0_db"] == esn0
-        assert p["ebn0_db"] == pytest.approx(esn0 - 10 * __import__("math").log10(4 / 7))
+        assert p["ebn0_db"] == pytest.approx(esn0 - 10 * math.log10(4 / 7))
