@@ -195,3 +195,31 @@ def test_esn0_grid_and_random_codewords(tmp_path, capsys):
         # Eb/N0 = Es/N0 - 10 log10(k/n) (definition, DESIGN.md section 2)
         assert p["esn0_db"] == esn0
         assert p["ebn0_db"] == pytest.approx(esn0 - 10 * math.log10(4 / 7))
+
+
+def test_ctrl_c_with_process_pool_keeps_chunks(tmp_path):
+    store = tmp_path / "c.sqlite"
+    env = {**os.environ, "PYTHONPATH": str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", "")}
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "ldpcmarg", "simulate", "hamming-7-4", "-d", "sum-product",
+         "--ebn0", "1,2", "--frame-errors", "10000000", "--max-frames", "100000000",
+         "--chunk-frames", "64", "--workers", "2", "-q", "--store", str(store)],
+        env=env, cwd=tmp_path, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True,
+        preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
+    deadline = time.monotonic() + 120
+    n = 0
+    while time.monotonic() < deadline and proc.poll() is None and n < 5:
+        time.sleep(0.05)
+        if store.exists():
+            try:
+                con = sqlite3.connect(f"file:{store}?mode=ro", uri=True, timeout=1)
+                n = con.execute("SELECT COUNT(*) FROM chunks").fetchone()[0]
+                con.close()
+            except sqlite3.OperationalError:
+                n = 0
+    assert proc.poll() is None
+    proc.send_signal(signal.SIGINT)
+    _, err = proc.communicate(timeout=60)
+    assert proc.returncode == 130
+    assert "Interrupted" in err and "Traceback" not in err
+    assert _store_state(store)["chunks"] >= n
