@@ -223,6 +223,66 @@ def _flood_ms_plain(llr, check_ptr, edge_var, alpha, beta, max_iter, early_stop,
 
 
 @nb.njit(**NUMBA_OPTS)
+def _flood_sp_plain(llr, check_ptr, edge_var, pmax, max_iter, early_stop, c2v, L, Lnew, vbuf,
+                    tbuf):
+    """Sum-product flooding without damping, weights or tolerance: the common fast path.
+
+    Same arithmetic (operation for operation) as :func:`_flood_frame` in
+    sum-product mode, so results are identical; the single-purpose loop
+    compiles to faster code.
+    """
+    n = llr.shape[0]
+    m = check_ptr.shape[0] - 1
+    for i in range(n):
+        L[i] = llr[i]
+    for e in range(c2v.shape[0]):
+        c2v[e] = 0.0
+    it = 0
+    start = 0
+    while True:
+        if early_stop:
+            c = _first_unsatisfied(L, check_ptr, edge_var, start)
+            if c < 0:
+                return it, True, True
+            start = c
+        if it >= max_iter:
+            break
+        for i in range(n):
+            Lnew[i] = llr[i]
+        for c in range(m):
+            a = check_ptr[c]
+            d = check_ptr[c + 1] - a
+            sprod = 1.0
+            acc = 1.0
+            for k in range(d):
+                e = a + k
+                v = L[edge_var[e]] - c2v[e]
+                vbuf[k] = v
+                sprod *= math.copysign(1.0, v)
+                ex = math.exp(-abs(v))
+                t = (1.0 - ex) / (1.0 + ex)
+                tbuf[k] = acc
+                acc *= t
+                vbuf[d + k] = t
+            acc = 1.0
+            for kk in range(d):
+                k = d - 1 - kk
+                p = tbuf[k] * acc
+                acc *= vbuf[d + k]
+                if p > pmax:
+                    p = pmax
+                e = a + k
+                out = math.log((1.0 + p) / (1.0 - p)) * sprod * math.copysign(1.0, vbuf[k])
+                c2v[e] = out
+                Lnew[edge_var[e]] += out
+        for i in range(n):
+            L[i] = Lnew[i]
+        it += 1
+    ok = _first_unsatisfied(L, check_ptr, edge_var, start) < 0
+    return it, ok, False
+
+
+@nb.njit(**NUMBA_OPTS)
 def _flood_frame(llr, check_ptr, edge_var, rho, weighted, mode, alpha, beta, damping,
                  max_iter, early_stop, tol, pmax, c2v, L, Lnew, vbuf, tbuf):
     """Flooding schedule on one frame.
@@ -362,11 +422,14 @@ def _flood_batch(llr, check_ptr, edge_var, rho, weighted, mode, alpha, beta, dam
         Lnew = np.empty(n, dtype=post.dtype)
         vbuf = np.empty(2 * dmax + 1, dtype=post.dtype)
         tbuf = np.empty(dmax + 1, dtype=post.dtype)
-        plain_ms = mode == _MODE_MS and damping == 0.0 and tol == 0.0 and not weighted
+        plain = damping == 0.0 and tol == 0.0 and not weighted
         for f in range(ch, F, nchunks):
-            if plain_ms:
+            if plain and mode == _MODE_MS:
                 it, ok, st = _flood_ms_plain(llr[f], check_ptr, edge_var, alpha, beta, max_iter,
                                              early_stop, c2v, post[f], Lnew, vbuf)
+            elif plain:
+                it, ok, st = _flood_sp_plain(llr[f], check_ptr, edge_var, pmax, max_iter,
+                                             early_stop, c2v, post[f], Lnew, vbuf, tbuf)
             else:
                 it, ok, st = _flood_frame(llr[f], check_ptr, edge_var, rho, weighted, mode,
                                           alpha, beta, damping, max_iter, early_stop, tol, pmax,
