@@ -71,7 +71,7 @@ def test_biawgn_capacity_limits_and_esn0():
 
 
 def test_bsc_and_bec():
-    # BSC(0.11) has capacity ~ 0.5 (1 - h(0.11) = 0.50002; common practice / from memory)
+    # BSC(0.11) has capacity ~ 0.5 (1 - h(0.11) = 0.5001; a textbook example, from memory)
     assert cap.bsc_capacity(0.11) == pytest.approx(0.5, abs=1e-3)
     assert cap.bsc_capacity(0.5) == pytest.approx(0.0, abs=1e-15)
     assert cap.bsc_capacity(0.0) == 1.0
