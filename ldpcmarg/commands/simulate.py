@@ -211,6 +211,9 @@ def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_f
         _point_channel(SNR_KINDS[snr_kind], snr_kind, v, code_obj.rate)
 
     executor = None
+    if cluster and workers is not None:
+        raise InputError("--workers is for the local process pool; with --cluster the "
+                         "cluster's workers run the chunks. Give one of the two.")
     if cluster:
         from ..executors import DaskExecutor
 
