@@ -39,6 +39,13 @@ check's direction involves one or two local codewords), update. Variants:
   with ``eps`` shrunk adaptively (in the spirit of Krishnan, Lacoste-Julien &
   Sontag, NeurIPS 2015), which keeps the iterate interior.
 
+Measured (``experiments/fw_convergence.py``, ``experiments/bench_frank_wolfe.py``):
+from the uniform point no variant reaches a relative gap of 1e-4 in 15 s on
+the PEG (3,6) n = 504 code (HiGHS calls of 1–5 s each, > 99 % of the time);
+started from converged reweighted sum-product beliefs, one oracle call
+certifies the point (about 0.05 s per frame at 1.5 and 2.5 dB, 60–220 times
+sum-product's time), so the warm start is the default.
+
 The duality gap ``g = <grad F(tau), tau - s>`` (``s`` the oracle vertex) bounds
 ``F(tau) - F*`` from above when ``F`` is convex. For non-convex (Bethe) ``F`` it
 is only a stationarity measure, and a Bethe run that ends at an integral vertex
@@ -918,10 +925,13 @@ class FrankWolfeDecoder(Decoder):
         small codes). ``"dual"``: the dual-candidate oracle of
         :mod:`ldpcmarg.decoders.lp_dual` with HiGHS as exact fallback.
     variant : {"vanilla", "away", "pairwise", "contracted"}
-        Default "vanilla": from the warm start it was the variant that reached a
-        relative gap of 1e-6 most often in ``experiments/fw_convergence.py``
-        (the active-set variants shed the start atom and then crawl along the
-        boundary, where the entropy gradient is unbounded).
+        Default "vanilla", measured in ``experiments/fw_convergence.py``: from a
+        converged warm start every variant certifies in one oracle call; from
+        the uniform point or an unconverged start none reaches a relative gap
+        of 1e-4 within 300 calls on an n = 24 code, and vanilla ends lowest
+        (median 5e-3 to 2e-2, contracted 6e-3 to 4e-2; away and pairwise shed
+        the start atom, then crawl along the boundary where the entropy
+        gradient is unbounded, and end at 5e-2 to 1e2).
     gap_tol : float
         Relative duality-gap tolerance: stop when ``gap <= gap_tol * max(1, |F|)``.
     abs_gap_tol : float
@@ -929,9 +939,10 @@ class FrankWolfeDecoder(Decoder):
     max_iter : int
         Oracle calls per frame.
     time_limit : float or None
-        Seconds per frame (None: no cap).
+        Seconds per frame, warm start included (None: no cap).
     eps0, eps_min : float
-        Start and floor of the contraction (variant "contracted").
+        Start and floor of the contraction (variant "contracted"); from a warm
+        start the contraction starts at ``min(eps0, 1e-3)``.
     warm_start : {"auto", "uniform", "reweighted-sum-product"}
         Start point: the uniform point, or the beliefs of reweighted
         sum-product with the same ``rho`` made consistent and strictly
@@ -1107,12 +1118,20 @@ class FrankWolfeDecoder(Decoder):
         """Run the solver on one frame of channel LLRs (n,) and return the full record."""
         lam = np.ascontiguousarray(llr_row, dtype=np.float64)
         o = self.options
-        return solve_frame(self._prob, self._get_oracle(), lam, variant=o["variant"],
-                           start=self._start(lam), gap_tol=o["gap_tol"],
-                           abs_gap_tol=o["abs_gap_tol"], max_iter=o["max_iter"],
-                           time_limit=o["time_limit"], eps0=o["eps0"], eps_min=o["eps_min"],
-                           convex=self.convex, trace=o["trace"], dual=self._get_dual(),
-                           cert_sweeps=o["cert_sweeps"])
+        t0 = time.perf_counter()
+        start = self._start(lam)
+        t_warm = time.perf_counter() - t0
+        limit = o["time_limit"]
+        if limit is not None:  # the warm start counts against the frame's time cap
+            limit = max(limit - t_warm, 1e-3)
+        eps0 = o["eps0"] if start is None else min(o["eps0"], 1e-3)
+        r = solve_frame(self._prob, self._get_oracle(), lam, variant=o["variant"],
+                        start=start, gap_tol=o["gap_tol"], abs_gap_tol=o["abs_gap_tol"],
+                        max_iter=o["max_iter"], time_limit=limit, eps0=eps0,
+                        eps_min=o["eps_min"], convex=self.convex, trace=o["trace"],
+                        dual=self._get_dual(), cert_sweeps=o["cert_sweeps"])
+        r.seconds += t_warm
+        return r
 
     def _decode(self, llr: np.ndarray) -> DecodeResult:
         F, n = llr.shape
