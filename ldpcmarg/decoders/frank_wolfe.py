@@ -949,7 +949,9 @@ class FrankWolfeDecoder(Decoder):
         interior (:func:`consistent_interior_point`). ``"auto"`` (default):
         reweighted sum-product, measured in ``experiments/fw_convergence.py``
         to save orders of magnitude of oracle calls; with Bethe weights the
-        uniform start also falls into Bethe traps.
+        uniform start also falls into Bethe traps. With ``oracle="ml"`` the
+        default start is uniform (message-passing beliefs need not be codeword
+        marginals).
     warm_iter : int
         Iteration cap of the warm-start message passing (damping 0.5, stops when
         no message moves by more than 1e-12). Default 5000.
@@ -1063,7 +1065,9 @@ class FrankWolfeDecoder(Decoder):
                                max_check_degree=self.options["max_check_degree"])
         ws = self.options["warm_start"]
         if ws == "auto":
-            ws = "reweighted-sum-product"
+            # the MIP oracle optimises over codeword marginals: the message-passing
+            # beliefs (a point of L) would keep the iterate outside that polytope
+            ws = "uniform" if self.options["oracle"] == "ml" else "reweighted-sum-product"
         self.start_kind = ws
         self._oracle = None
         self._mp = None
