@@ -48,7 +48,9 @@ frames, bit errors over information bits (``code.encoder.info_positions``)
 and over all ``n`` bits, with the per-frame sums of squares for the BER
 interval (:mod:`ldpcmarg.stats`), frame errors (decoded word differs from
 the sent codeword), undetected errors (decoded word is a valid codeword but
-the wrong one), iterations and decoder seconds.
+the wrong one), iterations and decoder seconds. A bit whose posterior LLR
+is exactly 0 (a tie, such as an erasure the decoder left unresolved on the
+BEC) counts as an error whatever word was sent.
 """
 
 from __future__ import annotations
@@ -354,10 +356,18 @@ def run_chunk(ctx: SweepContext, task: ChunkTask) -> ChunkResult:
         err = np.asarray(res.bits, dtype=np.uint8)
         if cw is not None:
             err = err ^ cw
+        decided = np.ones(F, dtype=bool)
+        if res.posterior_llr is not None:
+            # An undecided bit (posterior LLR exactly 0, e.g. an unresolved BEC
+            # erasure) is an error whatever word was sent; otherwise the
+            # all-zero word would credit the decoder with every tie it left.
+            ties = res.posterior_llr == 0.0
+            err = err | ties
+            decided = ~ties.any(axis=1)
         e_all = err.sum(axis=1, dtype=np.int64)
         e_info = e_all if all_info else err[:, info].sum(axis=1, dtype=np.int64)
         fe = e_all > 0
-        und = fe & np.asarray(res.valid, dtype=bool)
+        und = fe & np.asarray(res.valid, dtype=bool) & decided
         counts[ctx.decoders[i]] = (
             F, int(e_all.sum()), int((e_all * e_all).sum()), int(e_info.sum()),
             int((e_info * e_info).sum()), int(fe.sum()), int(und.sum()),

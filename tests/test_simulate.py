@@ -214,3 +214,17 @@ def test_bad_input_is_input_error(hamming74, kwargs):
 def test_bad_stop_rule(rule):
     with pytest.raises(InputError):
         StopRule(**rule)
+
+
+def test_unresolved_bec_erasures_count_as_errors():
+    # Uncoded BEC: every erased bit is undecided (LLR 0), so the bit error rate
+    # must equal the erasure probability, not 0 as the all-zero word would
+    # suggest (common practice: unresolved erasures are errors).
+    code = ParityCheckCode(np.zeros((1, 64), dtype=np.uint8), name="uncoded-64")  # rate 1
+    res = simulate(code, ["hard-decision"], [0.2], snr_kind="epsilon", seed=3,
+                   stop=StopRule(frame_errors=10**6, max_frames=2000))
+    p = res.points[0]
+    assert p.frames == 2000
+    # 128000 bits, binomial sd of the rate = sqrt(0.2*0.8/128000) = 1.1e-3: 5 sd = 0.0056
+    assert abs(p.bit_errors / (2000 * 64) - 0.2) < 0.0056
+    assert p.undetected_errors == 0
