@@ -222,9 +222,9 @@ def main():
     args = ap.parse_args()
     if args.quick:
         args.ebn0 = [1.0, 3.0, 5.0]
-        args.frames = args.frames or 2
-        args.max_iter = args.max_iter or 50
-        args.time_cap = args.time_cap or 0.8
+        args.frames = args.frames or 3
+        args.max_iter = args.max_iter or 150
+        args.time_cap = args.time_cap or 1.5
     else:
         args.ebn0 = [0.0, 1.0, 2.0, 3.0, 4.0, 5.0]
         args.frames = args.frames or 4
