@@ -30,6 +30,8 @@ Usage::
 
     python experiments/bench_frank_wolfe.py            # several minutes
     python experiments/bench_frank_wolfe.py --quick    # about a minute
+    python experiments/bench_frank_wolfe.py --frames 30 --variants warm-vanilla,warm-vanilla-dual \
+        --tag bench_frank_wolfe_warm30                # the default start on more frames
 
 Writes ``experiments/results/bench_frank_wolfe{,_quick}.{json,md,png}``.
 The machine is shared with other jobs (2 cores): wall times are noisy.
@@ -69,6 +71,7 @@ def main():
     ap.add_argument("--quick", action="store_true")
     ap.add_argument("--frames", type=int, default=None)
     ap.add_argument("--cap", type=float, default=None, help="seconds per frame and method")
+    ap.add_argument("--tag", default=None, help="output file stem (default from --quick)")
     ap.add_argument("--variants", default=",".join(
         BASE + tuple("warm-" + v for v in BASE) + ("warm-vanilla-dual",)))
     args = ap.parse_args()
@@ -181,7 +184,7 @@ def main():
         lines.append(f"sum-product at {ebn0} dB: median {s['median_s'] * 1e3:.2f} ms per frame "
                      f"({s['iterations']} iterations, flooding, early stop).")
     md = "\n".join(lines) + "\n"
-    tag = "bench_frank_wolfe_quick" if args.quick else "bench_frank_wolfe"
+    tag = args.tag or ("bench_frank_wolfe_quick" if args.quick else "bench_frank_wolfe")
     OUT.mkdir(parents=True, exist_ok=True)
     (OUT / f"{tag}.md").write_text(md)
     (OUT / f"{tag}.json").write_text(json.dumps({"rows": rows, "table": table,
