@@ -1073,31 +1073,30 @@ class DualCandidateOracle:
         return (bits, local, -y[gr.m:], y[: gr.m]), iters
 
     def _bound_from_fallback_duals(self, fb, g, h, bound):
-        """Lagrangian bound at the fallback solver's row duals, if it exposes a HiGHS model.
+        """Lagrangian bound at the fallback solver's edge duals, if it offers ``duals()``.
 
-        ``LocalPolytopeLP`` keeps its ``Highs`` object in ``_h`` with edge rows
-        ``tau_i - sum_{S ∋ i} tau_c(S) = 0`` (rows ``m + e``); whatever the sign
-        convention, ``D(mu)`` is a valid bound for any ``mu``, so both signs are
-        evaluated and the better one (with the dual-ascent bound) is kept. The
-        multipliers also warm-start the next dual ascent.
+        ``LocalPolytopeLP.duals()`` returns ``(check_duals, edge_duals)`` with
+        ``edge_duals`` the multipliers of DESIGN.md §5a. ``D(mu)`` is evaluated
+        here, so it is a valid bound whatever the solver reports; the better of
+        it and the dual-ascent bound is kept, and the multipliers warm-start the
+        next dual ascent.
         """
         gr = self._gr
-        hs = getattr(fb, "_h", None)
-        if hs is None:
+        getter = getattr(fb, "duals", None)
+        if getter is None:
             return bound
         try:
-            y = np.asarray(hs.getSolution().row_dual, dtype=np.float64)
-        except Exception:  # pragma: no cover - a solver without duals
+            _, mu = getter()
+        except Exception:  # pragma: no cover - a solver without duals for this solve
             return bound
-        if y.shape != (gr.m + gr.E,) or not np.all(np.isfinite(y)):
+        mu = np.ascontiguousarray(mu, dtype=np.float64)
+        if mu.shape != (gr.E,) or not np.all(np.isfinite(mu)):
             return bound
-        for mu in (y[gr.m:], -y[gr.m:]):
-            mu = np.ascontiguousarray(mu)
-            ev = _evaluate(gr, g, h, mu)
-            if ev[0] > bound:
-                bound = ev[0]
-                self.dual.mu[:] = mu
-                self.dual.last = ev
+        ev = _evaluate(gr, g, h, mu)
+        if ev[0] > bound:
+            bound = ev[0]
+            self.dual.mu[:] = mu
+            self.dual.last = ev
         return bound
 
     # ------------------------------------------------------------------ solve
