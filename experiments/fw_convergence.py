@@ -219,6 +219,9 @@ def main():
     ap.add_argument("--frames", type=int, default=None)
     ap.add_argument("--max-iter", type=int, default=None)
     ap.add_argument("--time-cap", type=float, default=None, help="seconds per frame and variant")
+    ap.add_argument("--out", type=Path, default=None,
+                    help="output folder (default experiments/results, files tagged _quick "
+                         "in quick mode); with --out the files are named fw_convergence.*")
     args = ap.parse_args()
     if args.quick:
         args.ebn0 = [1.0, 3.0, 5.0]
@@ -230,19 +233,21 @@ def main():
         args.frames = args.frames or 4
         args.max_iter = args.max_iter or 300
         args.time_cap = args.time_cap or 3.0
-    OUT.mkdir(parents=True, exist_ok=True)
+    out = args.out or OUT
+    out.mkdir(parents=True, exist_ok=True)
     t0 = time.time()
     code, rows = run(args)
     table = summarise(rows, args.ebn0)
-    tag = "fw_convergence_quick" if args.quick else "fw_convergence"
-    (OUT / f"{tag}.json").write_text(json.dumps(
-        {"code": code.summary(), "args": {k: v for k, v in vars(args).items()},
+    tag = "fw_convergence_quick" if args.quick and args.out is None else "fw_convergence"
+    (out / f"{tag}.json").write_text(json.dumps(
+        {"code": code.summary(), "args": {k: (str(v) if isinstance(v, Path) else v)
+                 for k, v in vars(args).items()},
          "rows": rows, "table": table}, indent=1))
     md = markdown(table, args, code)
-    (OUT / f"{tag}.md").write_text(md)
-    figure(rows, table, args.ebn0, OUT / f"{tag}.png", args.max_iter)
+    (out / f"{tag}.md").write_text(md)
+    figure(rows, table, args.ebn0, out / f"{tag}.png", args.max_iter)
     print(md)
-    print(f"total {time.time() - t0:.0f} s; wrote {OUT / tag}.{{json,md,png}}")
+    print(f"total {time.time() - t0:.0f} s; wrote {out / tag}.{{json,md,png}}")
 
 
 if __name__ == "__main__":

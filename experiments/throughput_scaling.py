@@ -52,8 +52,8 @@ def channel_llr(code, ebn0_db: float, frames: int, seed: int) -> np.ndarray:
 
 def time_decoder(spec: str, code, llr: np.ndarray, iterations: int) -> tuple[float, int]:
     """Seconds for one decode of the batch, and iterations actually performed in total."""
-    dec = lm.make_decoder(f"{spec}{',' if ':' in spec else ':'}max_iter={iterations},early_stop=false",
-                          code)
+    sep = "," if ":" in spec else ":"
+    dec = lm.make_decoder(f"{spec}{sep}max_iter={iterations},early_stop=false", code)
     dec.decode(llr[:2])  # compile / load the numba cache outside the timing
     t0 = time.perf_counter()
     res = dec.decode(llr)
@@ -113,7 +113,8 @@ def lp_scaling(lengths, reps, rows):
                      "cold_dense_s": float(np.median(cold_dense)),
                      "hot_1pct_s": float(np.median(hot))})
         print(f"LP n={n:6d} cold(bits) {rows[-1]['cold_bits_only_s']:.3f} s  "
-              f"cold(dense) {rows[-1]['cold_dense_s']:.3f} s  hot 1% {rows[-1]['hot_1pct_s']:.4f} s",
+              f"cold(dense) {rows[-1]['cold_dense_s']:.3f} s  "
+              f"hot 1% {rows[-1]['hot_1pct_s']:.4f} s",
               flush=True)
 
 
@@ -160,7 +161,8 @@ def plot(length_rows, iter_rows, lp_rows, path: Path) -> None:
     ax.legend()
     ax = axes[2]
     ns = [r["n"] for r in lp_rows]
-    ax.loglog(ns, [r["cold_bits_only_s"] for r in lp_rows], "o-", label="cold, LP decoding (bit costs)")
+    ax.loglog(ns, [r["cold_bits_only_s"] for r in lp_rows], "o-",
+              label="cold, LP decoding (bit costs)")
     ax.loglog(ns, [r["cold_dense_s"] for r in lp_rows], "s-", label="cold, dense local costs")
     ax.loglog(ns, [r["hot_1pct_s"] for r in lp_rows], "^-", label="hot re-solve, 1 % change")
     ax.set_xlabel("code length n (bits)")
@@ -179,7 +181,8 @@ def main(argv=None) -> int:
     ap.add_argument("--out", type=Path, default=OUT)
     args = ap.parse_args(argv)
     if args.quick:
-        lengths, frames, iters, caps, lp_lengths, reps = [504, 1008], 50, 10, [5, 10], [96, 504], 1
+        lengths, frames, iters, caps = [504, 1008], 50, 10, [5, 10]
+        lp_lengths, reps = [96, 504], 1
     else:
         lengths = [504, 1008, 2016, 4032, 8064, 16128]
         frames, iters, caps, lp_lengths, reps = 400, 30, [5, 10, 20, 40, 80], [504, 1008, 2016], 3

@@ -96,7 +96,8 @@ def de_threshold(code, quick: bool) -> float | None:
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="two codes, two points, few frames")
-    ap.add_argument("--workers", type=int, default=None, help="worker processes (default: all cores)")
+    ap.add_argument("--workers", type=int, default=None,
+                    help="worker processes (default: all cores)")
     ap.add_argument("--seed", type=int, default=2026)
     ap.add_argument("--out", type=Path, default=OUT)
     args = ap.parse_args(argv)
