@@ -106,6 +106,26 @@ def test_bec_sum_product_equals_peeling(n, eps):
         assert n_stuck > 0                # ... and stopping sets
 
 
+@pytest.mark.parametrize("name", ["sum-product", "layered-sum-product", "min-sum",
+                                  "layered-min-sum"])
+def test_bec_all_zero_early_stop_does_not_stop_on_ties(name):
+    # With the all-zero word an erased bit (LLR 0) has hard decision 0, so the
+    # hard decision satisfies every check before any decoding. The early stop
+    # must not take that for success: the unresolved set must still be the
+    # peeling decoder's (Richardson & Urbanke, Modern Coding Theory, ch. 3).
+    rng = np.random.default_rng(4242)
+    H = random_regular_H(96, 3, 6, rng)
+    code = ParityCheckCode(H)
+    bec = make_channel("bec", epsilon=0.35)
+    zeros = np.zeros((12, code.n), dtype=np.uint8)
+    out = bec.transmit(zeros, rng)
+    res = lm.make_decoder(name, code, max_iter=96).decode(bec.llr(out))
+    assert np.all(res.iterations > 0)
+    for f in range(zeros.shape[0]):
+        _, still = peeling_decode(H, out[f], out[f] == 2)
+        np.testing.assert_array_equal(res.posterior_llr[f] == 0.0, still)
+
+
 # ------------------------------------------------------------------------ symmetry
 @pytest.mark.parametrize("name", SOFT + ["bit-flipping"])
 def test_codeword_symmetry_bit_for_bit(name, code96, seed):

@@ -108,6 +108,29 @@ def _first_unsatisfied(L, check_ptr, edge_var, start):
 
 
 @nb.njit(**NUMBA_OPTS)
+def _first_open(L, check_ptr, edge_var, start):
+    """Like :func:`_first_unsatisfied`, but a check touching a bit with ``L == 0`` is open too.
+
+    Used for the early stop: a tie (e.g. a BEC erasure not yet resolved) is no
+    decision, even when the all-zero hard decision happens to satisfy the checks.
+    """
+    m = check_ptr.shape[0] - 1
+    for t in range(m):
+        c = start + t
+        if c >= m:
+            c -= m
+        par = False
+        tie = False
+        for e in range(check_ptr[c], check_ptr[c + 1]):
+            v = L[edge_var[e]]
+            par ^= v < 0
+            tie |= v == 0.0
+        if par or tie:
+            return c
+    return -1
+
+
+@nb.njit(**NUMBA_OPTS)
 def _check_messages(L, c2v, edge_var, a, d, mode, alpha, beta, pmax, cap, vbuf, tbuf):
     """Extrinsic check messages of one check (edges ``a .. a+d-1``).
 
@@ -184,7 +207,7 @@ def _flood_ms_plain(llr, check_ptr, edge_var, alpha, beta, max_iter, early_stop,
     start = 0
     while True:
         if early_stop:
-            c = _first_unsatisfied(L, check_ptr, edge_var, start)
+            c = _first_open(L, check_ptr, edge_var, start)
             if c < 0:
                 return it, True, True
             start = c
@@ -241,7 +264,7 @@ def _flood_sp_plain(llr, check_ptr, edge_var, pmax, max_iter, early_stop, c2v, L
     start = 0
     while True:
         if early_stop:
-            c = _first_unsatisfied(L, check_ptr, edge_var, start)
+            c = _first_open(L, check_ptr, edge_var, start)
             if c < 0:
                 return it, True, True
             start = c
@@ -316,7 +339,7 @@ def _flood_frame(llr, check_ptr, edge_var, rho, weighted, mode, alpha, beta, dam
     stopped = False
     while True:
         if early_stop:
-            c = _first_unsatisfied(L, check_ptr, edge_var, start)
+            c = _first_open(L, check_ptr, edge_var, start)
             if c < 0:
                 return it, True, True
             start = c
@@ -383,7 +406,7 @@ def _layered_frame(llr, check_ptr, edge_var, mode, alpha, beta, damping, max_ite
     start = 0
     while True:
         if early_stop:
-            c = _first_unsatisfied(L, check_ptr, edge_var, start)
+            c = _first_open(L, check_ptr, edge_var, start)
             if c < 0:
                 return it, True, True
             start = c
