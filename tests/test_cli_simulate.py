@@ -223,3 +223,17 @@ def test_ctrl_c_with_process_pool_keeps_chunks(tmp_path):
     assert proc.returncode == 130
     assert "Interrupted" in err and "Traceback" not in err
     assert _store_state(store)["chunks"] >= n
+
+
+def test_plot_draws_density_evolution_threshold(tmp_path, capsys):
+    # The threshold line of a (3,6)-regular graph sits at Eb/N0 ~ 1.10 dB
+    # (sigma* ~ 0.8809 at rate 1/2; Richardson & Urbanke, Modern Coding Theory).
+    js = str(tmp_path / "c.json")
+    status, _, err = run_cli(BASE + ["--json", js], capsys)
+    assert status == 0, err
+    png = str(tmp_path / "thr.png")
+    status, out, err = run_cli(["plot", js, "-o", png, "--threshold", "peg-504-3-6"], capsys)
+    assert status == 0, err
+    assert Path(png).read_bytes()[:4] == b"\x89PNG"
+    status, _, err = run_cli(["plot", js, "-o", png, "--threshold", "no-such-code.txt"], capsys)
+    assert status == 2 and "no-such-code.txt" in err and "Traceback" not in err

@@ -30,10 +30,14 @@ def _thresholds(values) -> dict:
               show_default=True, help="Panels to draw.")
 @click.option("--line", "lines", multiple=True, metavar="LABEL=X",
               help="Extra vertical line, e.g. a density-evolution threshold in dB; repeatable.")
+@click.option("--threshold", "threshold_codes", multiple=True, metavar="CODE",
+              help="Draw the BI-AWGN BP threshold (discretised density evolution) of CODE's "
+                   "degree distribution, as Eb/N0 at its design rate; repeatable.")
 @click.option("--no-uncoded", is_flag=True, help="Leave out the uncoded reference curve.")
 @click.option("--no-shannon", is_flag=True, help="Leave out the Shannon-limit line(s).")
 @click.option("--title", default=None, help="Figure title.")
-def command(sources, output, run, metric, lines, no_uncoded, no_shannon, title):
+def command(sources, output, run, metric, lines, threshold_codes, no_uncoded, no_shannon,
+            title):
     """Draw BER and FER against Eb/N0 from SOURCES (stores, --json or --csv files).
 
     Several sources (codes, decoders) share one figure. Error bars are the
@@ -44,6 +48,14 @@ def command(sources, output, run, metric, lines, no_uncoded, no_shannon, title):
 
     check_figure_path(output)
     extra = _thresholds(lines)
+    if threshold_codes:
+        from .. import load_code
+        from ..density_evolution import DegreeDistribution, compute_threshold
+
+        for name in threshold_codes:
+            code = load_code(name)
+            thr = compute_threshold(DegreeDistribution.from_code(code), "awgn", "discretized")
+            extra[f"BP threshold {code.name} ({thr.ebn0_db:.2f} dB)"] = thr.ebn0_db
     curves = []
     for src in sources:
         if run is not None:
