@@ -46,6 +46,7 @@ import numba as nb
 import numpy as np
 
 from ._settings import NUMBA_OPTS
+from .channels import sigma_to_ebn0
 from .errors import InputError
 
 __all__ = [
@@ -62,7 +63,6 @@ __all__ = [
     "phi_inverse",
     "awgn_evolution_gaussian",
     "awgn_threshold_gaussian",
-    "biawgn_capacity",
     "biawgn_shannon_sigma",
     "compute_threshold",
     "METHODS",
@@ -440,8 +440,8 @@ def _finish(dd: DegreeDistribution, channel, method, parameter, thr, iters, tol,
         ebn0 = cap_ebn0 = gap = None
     else:
         limit = biawgn_shannon_sigma(R) if 0 < R < 1 else float("nan")
-        ebn0 = _sigma_to_ebn0(thr, R) if (R > 0 and thr > 0) else None
-        cap_ebn0 = _sigma_to_ebn0(limit, R) if 0 < R < 1 else None
+        ebn0 = sigma_to_ebn0(thr, R) if (R > 0 and thr > 0) else None
+        cap_ebn0 = sigma_to_ebn0(limit, R) if 0 < R < 1 else None
         gap = ebn0 - cap_ebn0 if (ebn0 is not None and cap_ebn0 is not None) else None
     return ThresholdResult(
         channel=channel, method=method, parameter=parameter, threshold=float(thr), rate=R,
@@ -449,10 +449,6 @@ def _finish(dd: DegreeDistribution, channel, method, parameter, thr, iters, tol,
         approximate=approximate, iterations=int(iters), tolerance=float(tol),
         settings=settings, seconds=time.perf_counter() - t0, ensemble=dd.to_dict(),
     )
-
-
-def _sigma_to_ebn0(sigma: float, rate: float) -> float:
-    return 10.0 * math.log10(1.0 / (2.0 * rate * sigma * sigma))
 
 
 def _check_positive(name: str, value, low=0.0, high=None, integer=False):
@@ -1384,49 +1380,21 @@ def awgn_threshold_gaussian(dd, *, tol: float = 1e-5, max_iter: int = 20000,
 
 
 # ======================================================================
-# BI-AWGN capacity and Shannon limit
+# BI-AWGN Shannon limit (from ldpcmarg.capacity)
 # ======================================================================
-def biawgn_capacity(sigma: float) -> float:
-    """Capacity (bits per channel use) of BPSK over AWGN with noise std ``sigma``.
-
-    ``C = 1 - E[log2(1 + exp(-L))]``, ``L ~ N(2/sigma^2, 4/sigma^2)``
-    (LLR of the transmitted +1), integrated with ``scipy.integrate.quad``.
-    """
-    from scipy.integrate import quad
-
-    sigma = _check_positive("sigma", sigma)
-    mu = 2.0 / sigma**2
-    sd = 2.0 / sigma
-
-    def f(z):
-        L = mu + sd * z
-        return math.exp(-0.5 * z * z) * np.logaddexp(0.0, -L)
-
-    val, _ = quad(f, -np.inf, np.inf, epsabs=1e-13, epsrel=1e-12, limit=200)
-    return 1.0 - val / math.sqrt(2.0 * math.pi) / math.log(2.0)
-
-
 @lru_cache(maxsize=256)
 def biawgn_shannon_sigma(rate: float) -> float:
     """Noise std ``sigma`` at which the BI-AWGN capacity equals ``rate`` (0 < rate < 1).
 
-    Uses ``ldpcmarg.capacity.biawgn_shannon_limit_ebn0_db`` when that module is
-    present, else :func:`biawgn_capacity` with ``scipy.optimize.brentq``.
+    From :func:`ldpcmarg.capacity.biawgn_shannon_limit_ebn0_db` (numerical
+    integration of the capacity); ``sigma**2 = 1 / (2 R 10**(EbN0/10))``.
     """
+    from .capacity import biawgn_shannon_limit_ebn0_db
+    from .channels import ebn0_to_sigma
+
     if not 0.0 < rate < 1.0:
         raise InputError(f"The rate must be in (0, 1) for a Shannon limit; got {rate!r}.")
-    try:
-        from .capacity import biawgn_shannon_limit_ebn0_db
-    except ImportError:
-        return _shannon_sigma_own(rate)
-    ebn0 = biawgn_shannon_limit_ebn0_db(rate)
-    return math.sqrt(1.0 / (2.0 * rate * 10.0 ** (ebn0 / 10.0)))
-
-
-def _shannon_sigma_own(rate: float) -> float:
-    from scipy.optimize import brentq
-
-    return float(brentq(lambda s: biawgn_capacity(s) - rate, 1e-3, 1e3, xtol=1e-12, rtol=1e-13))
+    return ebn0_to_sigma(biawgn_shannon_limit_ebn0_db(rate), rate)
 
 
 # ======================================================================
