@@ -100,6 +100,25 @@ def random_regular_H(n: int, dv: int, dc: int, rng: np.random.Generator) -> np.n
     return H
 
 
+def regular_H_by_redraw(n: int, dv: int, dc: int, seed: int) -> np.ndarray:
+    """Random (dv, dc)-regular H by socket matching, redrawn until no double edges.
+
+    Seeded: the same ``seed`` always gives the same matrix.
+    """
+    rng = np.random.default_rng(seed)
+    m = n * dv // dc
+    for _ in range(1000):
+        sockets = np.repeat(np.arange(n), dv)
+        rng.shuffle(sockets)
+        rows = sockets.reshape(m, dc)
+        if all(len(set(r)) == dc for r in rows):
+            H = np.zeros((m, n), dtype=np.uint8)
+            for c, r in enumerate(rows):
+                H[c, r] = 1
+            return H
+    raise RuntimeError("no simple graph drawn")
+
+
 def nullspace_basis(H: np.ndarray) -> np.ndarray:
     """A basis of ``{x : Hx = 0}`` over GF(2), shape (k, n), uint8."""
     H = np.asarray(H, dtype=np.uint8)

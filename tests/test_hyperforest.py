@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from naive import regular_H_by_redraw
 
 from ldpcmarg.code import ParityCheckCode
 from ldpcmarg.errors import InputError
@@ -11,18 +12,8 @@ from ldpcmarg.hyperforest import check_concavity, sample_hyperforests, trw_check
 
 
 def random_regular_code(n: int, dv: int, dc: int, seed: int) -> ParityCheckCode:
-    """Random (dv, dc)-regular code by socket matching, redrawn until no double edges."""
-    rng = np.random.default_rng(seed)
-    m = n * dv // dc
-    while True:
-        sockets = np.repeat(np.arange(n), dv)
-        rng.shuffle(sockets)
-        rows = sockets.reshape(m, dc)
-        if all(len(set(r)) == dc for r in rows):
-            H = np.zeros((m, n), dtype=np.uint8)
-            for c, r in enumerate(rows):
-                H[c, r] = 1
-            return ParityCheckCode(H, name=f"reg-{dv}-{dc}-{n}")
+    """Random (dv, dc)-regular code by socket matching (tests/naive.py)."""
+    return ParityCheckCode(regular_H_by_redraw(n, dv, dc, seed), name=f"reg-{dv}-{dc}-{n}")
 
 
 def random_tree_code(num_checks: int, seed: int) -> ParityCheckCode:

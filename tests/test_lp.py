@@ -17,6 +17,7 @@ import pickle
 import numpy as np
 import pytest
 from conftest import HAMMING_7_4
+from naive import regular_H_by_redraw
 from scipy.optimize import linprog
 
 from ldpcmarg.code import ParityCheckCode
@@ -27,19 +28,8 @@ from ldpcmarg.errors import InputError
 
 # ------------------------------------------------------------ naive references
 def random_regular_H(n, dv, dc, seed):
-    """A random (dv, dc)-regular H by socket matching, redrawn until no double edges."""
-    rng = np.random.default_rng(seed)
-    m = n * dv // dc
-    for _ in range(1000):
-        sockets = np.repeat(np.arange(n), dv)
-        rng.shuffle(sockets)
-        checks = sockets.reshape(m, dc)
-        if all(len(set(row)) == dc for row in checks):
-            H = np.zeros((m, n), dtype=np.uint8)
-            for c, row in enumerate(checks):
-                H[c, row] = 1
-            return H
-    raise RuntimeError("no simple graph found")
+    """A random (dv, dc)-regular H (tests/naive.py)."""
+    return regular_H_by_redraw(n, dv, dc, seed)
 
 
 # A cycle-free Tanner graph (checks {0,1,2}, {2,3,4}, {4,5,6,7}, {1,8,9}) and a
