@@ -11,7 +11,7 @@ Main entry points::
 from ._version import __version__
 from .channels import make_channel
 from .code import ParityCheckCode
-from .decoders.base import DecodeResult, Decoder, decoder_names, make_decoder
+from .decoders.base import Decoder, DecodeResult, decoder_names, make_decoder
 from .errors import InputError, LdpcmargError, SolverError, StoreError
 
 
@@ -25,6 +25,13 @@ def load_code(name_or_path, **kwargs):
     return _load(name_or_path, **kwargs)
 
 
+def save_code(code, path, fmt=None):
+    """Write a code's parity-check matrix (.mtx, .txt or .npz); see :func:`ldpcmarg.io.save_code`."""
+    from .io import save_code as _save
+
+    return _save(code, path, fmt=fmt)
+
+
 __all__ = [
     "__version__",
     "ParityCheckCode",
@@ -34,6 +41,7 @@ __all__ = [
     "make_decoder",
     "make_channel",
     "load_code",
+    "save_code",
     "LdpcmargError",
     "InputError",
     "SolverError",

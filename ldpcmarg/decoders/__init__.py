@@ -1,8 +1,8 @@
 """Decoders: the protocol and registry live in :mod:`ldpcmarg.decoders.base`."""
 
 from .base import (
-    DecodeResult,
     Decoder,
+    DecodeResult,
     decoder_names,
     make_decoder,
     parse_decoder_spec,
