@@ -26,7 +26,10 @@ def load_code(name_or_path, **kwargs):
 
 
 def save_code(code, path, fmt=None):
-    """Write a code's parity-check matrix (.mtx, .txt or .npz); see :func:`ldpcmarg.io.save_code`."""
+    """Write a code's parity-check matrix (.mtx, .txt or .npz).
+
+    See :func:`ldpcmarg.io.save_code`.
+    """
     from .io import save_code as _save
 
     return _save(code, path, fmt=fmt)

@@ -230,7 +230,8 @@ def make_channel(kind: str, *, ebn0_db: float | None = None, esn0_db: float | No
         if ebn0_db is not None:
             if rate is None:
                 raise InputError("An AWGN channel given by Eb/N0 needs the code rate.")
-            return AWGNChannel(ebn0_to_sigma(float(ebn0_db), float(rate)), float(ebn0_db), float(rate))
+            sigma = ebn0_to_sigma(float(ebn0_db), float(rate))
+            return AWGNChannel(sigma, float(ebn0_db), float(rate))
         if esn0_db is not None:
             s = esn0_to_sigma(float(esn0_db))
             eb = None if rate is None else float(esn0_db) - 10 * math.log10(rate)

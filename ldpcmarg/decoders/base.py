@@ -248,7 +248,8 @@ def parse_decoder_spec(spec: str) -> tuple[str, dict[str, Any]]:
             key, eq, value = item.partition("=")
             if not eq or not key.strip():
                 raise InputError(
-                    f"Malformed decoder option {item!r} in {spec!r}; expected name:key=value,key=value."
+                    f"Malformed decoder option {item!r} in {spec!r}; "
+                    "expected name:key=value,key=value."
                 )
             opts[key.strip().replace("-", "_")] = parse_option_value(value)
     return name.strip(), opts
