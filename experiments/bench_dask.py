@@ -22,9 +22,13 @@ from __future__ import annotations
 
 import argparse
 import logging
+import sys
 import time
+from pathlib import Path
 
 import numpy as np
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # run from a checkout
 
 import ldpcmarg as lm
 from ldpcmarg.executors import DaskExecutor, InlineExecutor

@@ -17,10 +17,14 @@ from __future__ import annotations
 
 import argparse
 import os
+import sys
 import tempfile
 import time
+from pathlib import Path
 
 import numpy as np
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # run from a checkout
 
 import ldpcmarg as lm
 from ldpcmarg.simulate import StopRule, default_chunk_frames, simulate
