@@ -8,22 +8,10 @@ import sys
 from pathlib import Path
 
 import pytest
+from cli_helpers import run_cli as run
 from test_io import malformed_files
 
-from ldpcmarg.cli import main
-
 ROOT = Path(__file__).resolve().parent.parent
-
-
-def run(argv, capsys):
-    """Run the CLI in-process; return (exit status, stdout, stderr)."""
-    try:
-        main(argv)
-        status = 0
-    except SystemExit as exc:
-        status = exc.code if isinstance(exc.code, int) else 1
-    out = capsys.readouterr()
-    return status, out.out, out.err
 
 
 def test_every_malformed_file_gives_one_line_error(tmp_path, capsys):

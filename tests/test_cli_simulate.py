@@ -13,21 +13,9 @@ import time
 from pathlib import Path
 
 import pytest
-
-from ldpcmarg.cli import main
+from cli_helpers import run_cli
 
 ROOT = Path(__file__).resolve().parents[1]
-
-
-def run_cli(args, capsys):
-    """Run the CLI in-process; return (exit status, stdout, stderr)."""
-    try:
-        main([str(a) for a in args])
-        status = 0
-    except SystemExit as exc:
-        status = exc.code
-    out = capsys.readouterr()
-    return status, out.out, out.err
 
 
 def counted(doc):

@@ -8,11 +8,11 @@ import math
 import numpy as np
 import pytest
 import scipy.sparse as sp
+from cli_helpers import run_cli as _run
 from scipy.integrate import quad
 from scipy.optimize import minimize_scalar
 
 import ldpcmarg.density_evolution as de
-from ldpcmarg.cli import main
 from ldpcmarg.code import ParityCheckCode
 from ldpcmarg.density_evolution import (
     DegreeDistribution,
@@ -405,16 +405,6 @@ def test_bec_simulation_agrees_with_threshold():
 
 
 # ------------------------------------------------------------------------ CLI
-def _run(argv, capsys):
-    try:
-        main(argv)
-        status = 0
-    except SystemExit as exc:
-        status = exc.code if isinstance(exc.code, int) else 1
-    out = capsys.readouterr()
-    return status, out.out, out.err
-
-
 def test_cli_bec_regular_and_json(capsys):
     status, out, _ = _run(["threshold", "--regular", "3,6", "--channel", "bec"], capsys)
     assert status == 0 and "eps* = 0.42944" in out and "1 - R = 0.500000" in out
