@@ -27,7 +27,10 @@ otherwise), ``"trw"`` (``rho`` from sampled maximal hyperforests,
 sufficient concavity condition holds).
 
 Each iteration: gradient, a linear-minimisation oracle (LP decoding with extra
-costs on local codewords, hot-started HiGHS), an exact line search (safeguarded
+costs on local codewords: by default the dual-candidate oracle of
+:mod:`ldpcmarg.decoders.lp_dual`, which accepts cheap candidate vertices proved
+optimal by a Lagrangian bound and falls back to hot-started HiGHS;
+``oracle="lp"`` calls HiGHS every time), an exact line search (safeguarded
 Newton with bisection on ``f'(gamma)``; ``O(#checks)`` per evaluation when each
 check's direction involves one or two local codewords), update. Variants:
 
@@ -993,7 +996,7 @@ class FrankWolfeDecoder(Decoder):
     params = {
         "entropy": Param("any", "bethe",
                          doc="'bethe', 'trw', a number, or an array of check weights (m,)"),
-        "oracle": Param("choice", "lp", choices=_ORACLES,
+        "oracle": Param("choice", "dual", choices=_ORACLES,
                         doc="linear-minimisation oracle: local-polytope LP, MIP, dual candidate"),
         "variant": Param("choice", "vanilla", choices=_VARIANTS,
                          doc="Frank-Wolfe variant"),
