@@ -636,6 +636,17 @@ def _relative(gap: float, f: float) -> float:
     return gap / max(1.0, abs(f))
 
 
+def _toward_vertex(prob, sb, sl, tb, tl, mode, hot_a, hot_b, negent):
+    """Frank-Wolfe direction ``s - tau`` with the line-search shortcut tables filled.
+
+    Classifies each check's direction (one local codeword or generic) into
+    ``mode``/``hot_a``/``hot_b`` and stores each check's negative entropy in ``negent``.
+    """
+    _classify_kernel(prob.offset, 1, sl, sl, mode, hot_a, hot_b)
+    _check_negentropy_kernel(prob.offset, tl, negent)
+    return sb - tb, sl - tl
+
+
 def solve_frame(prob: FWProblem, oracle, lam: np.ndarray, *, variant: str = "vanilla",
                 start=None, gap_tol: float = 1e-6, abs_gap_tol: float = 0.0,
                 max_iter: int = 1000, time_limit: float | None = None, eps0: float = 0.1,
@@ -788,9 +799,7 @@ def solve_frame(prob: FWProblem, oracle, lam: np.ndarray, *, variant: str = "van
             gmax, cap = 1.0, eps == 0.0
             slope = float(gb @ db + gl @ dl)
         elif variant == "vanilla":
-            db, dl = sb - tb, sl - tl
-            _classify_kernel(prob.offset, 1, sl, sl, mode, hot_a, hot_b)
-            _check_negentropy_kernel(prob.offset, tl, negent)
+            db, dl = _toward_vertex(prob, sb, sl, tb, tl, mode, hot_a, hot_b, negent)
             gmax, cap = 1.0, True
             slope = -gap
         else:
@@ -801,9 +810,7 @@ def solve_frame(prob: FWProblem, oracle, lam: np.ndarray, *, variant: str = "van
             vb, vl = v[:n], v[n:]
             if variant == "away" and gap >= gaway:
                 kind = 0
-                db, dl = sb - tb, sl - tl
-                _classify_kernel(prob.offset, 1, sl, sl, mode, hot_a, hot_b)
-                _check_negentropy_kernel(prob.offset, tl, negent)
+                db, dl = _toward_vertex(prob, sb, sl, tb, tl, mode, hot_a, hot_b, negent)
                 gmax, cap = 1.0, False
                 slope = -gap
             elif variant == "away":
@@ -811,9 +818,7 @@ def solve_frame(prob: FWProblem, oracle, lam: np.ndarray, *, variant: str = "van
                 wv = active.w[jv]
                 if wv >= 1.0 - 1e-15:
                     kind = 0
-                    db, dl = sb - tb, sl - tl
-                    _classify_kernel(prob.offset, 1, sl, sl, mode, hot_a, hot_b)
-                    _check_negentropy_kernel(prob.offset, tl, negent)
+                    db, dl = _toward_vertex(prob, sb, sl, tb, tl, mode, hot_a, hot_b, negent)
                     gmax, cap = 1.0, False
                     slope = -gap
                 else:
@@ -824,9 +829,7 @@ def solve_frame(prob: FWProblem, oracle, lam: np.ndarray, *, variant: str = "van
             elif active.keys.get(active.key(np.concatenate([sb, sl])), -1) == jv:
                 # the away atom is the oracle's vertex (ties): take a plain FW step
                 kind = 0
-                db, dl = sb - tb, sl - tl
-                _classify_kernel(prob.offset, 1, sl, sl, mode, hot_a, hot_b)
-                _check_negentropy_kernel(prob.offset, tl, negent)
+                db, dl = _toward_vertex(prob, sb, sl, tb, tl, mode, hot_a, hot_b, negent)
                 gmax, cap = 1.0, False
                 slope = -gap
             else:  # pairwise
