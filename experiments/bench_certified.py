@@ -52,8 +52,8 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 import ldpcmarg as lm  # noqa: E402
+from ldpcmarg.code.hyperforest import trw_check_weights  # noqa: E402
 from ldpcmarg.decoders.message_passing import ReweightedSumProductDecoder  # noqa: E402
-from ldpcmarg.hyperforest import trw_check_weights  # noqa: E402
 
 REL_GAP = 1e-4
 

@@ -31,8 +31,8 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # run from a checkout
 
 import ldpcmarg as lm
-from ldpcmarg.executors import DaskExecutor, InlineExecutor
-from ldpcmarg.simulate import StopRule, simulate
+from ldpcmarg.engine.executors import DaskExecutor, InlineExecutor
+from ldpcmarg.engine.simulate import StopRule, simulate
 
 
 def timed(code, dec, ebn0, frames, chunk, executor, seed=5):

@@ -27,8 +27,8 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # run from a checkout
 
 import ldpcmarg as lm
-from ldpcmarg.simulate import StopRule, default_chunk_frames, simulate
-from ldpcmarg.store import Store
+from ldpcmarg.engine.simulate import StopRule, default_chunk_frames, simulate
+from ldpcmarg.engine.store import Store
 
 
 def main():

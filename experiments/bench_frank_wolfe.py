@@ -50,8 +50,8 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 import ldpcmarg as lm  # noqa: E402
-from ldpcmarg.channels import ebn0_to_sigma  # noqa: E402
 from ldpcmarg.decoders.frank_wolfe import consistent_interior_point, solve_frame  # noqa: E402
+from ldpcmarg.link.channels import ebn0_to_sigma  # noqa: E402
 
 OUT = Path(__file__).resolve().parent / "results"
 BASE = ("vanilla", "away", "pairwise", "contracted")

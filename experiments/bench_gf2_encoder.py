@@ -34,9 +34,9 @@ ROOT = Path(__file__).resolve().parent.parent
 if str(ROOT) not in sys.path:
     sys.path.insert(0, str(ROOT))
 
-from ldpcmarg import construct as C  # noqa: E402
-from ldpcmarg import gf2  # noqa: E402
-from ldpcmarg.code import SystematicEncoder  # noqa: E402
+from ldpcmarg.code import construct as C  # noqa: E402
+from ldpcmarg.code import gf2  # noqa: E402
+from ldpcmarg.code.parity_check import SystematicEncoder  # noqa: E402
 
 
 def best_of(fn, repeats):

@@ -41,7 +41,7 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from ldpcmarg.code import ParityCheckCode  # noqa: E402
+from ldpcmarg.code.parity_check import ParityCheckCode  # noqa: E402
 from ldpcmarg.decoders.lp import LocalPolytopeLP  # noqa: E402
 
 
@@ -198,7 +198,7 @@ def bench_code(code, reps, cap, out, hot_variants=HOT_VARIANTS,
 
 def bench_mip(out, frames=10):
     """CPU time per frame of the two exact ML formulations on small codes."""
-    from ldpcmarg import construct
+    from ldpcmarg.code import construct
     from ldpcmarg.decoders.lp import ParityMIP
 
     out("\n== block-ML MIP: CPU ms per frame (AWGN sigma = 0.9, LLRs of the all-zero word, "

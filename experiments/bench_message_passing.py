@@ -47,8 +47,8 @@ HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))
 
 import ldpcmarg as lm  # noqa: E402
-from ldpcmarg.channels import make_channel  # noqa: E402
-from ldpcmarg.code import ParityCheckCode  # noqa: E402
+from ldpcmarg.code.parity_check import ParityCheckCode  # noqa: E402
+from ldpcmarg.link.channels import make_channel  # noqa: E402
 
 
 def cpu_seconds() -> float:

@@ -32,7 +32,7 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 
-from ldpcmarg.density_evolution import (  # noqa: E402
+from ldpcmarg.analysis.density_evolution import (  # noqa: E402
     DegreeDistribution,
     awgn_threshold_discretized,
     awgn_threshold_gaussian,

@@ -5,7 +5,7 @@ Run from the repository root::
     python experiments/make_shipped_codes.py            # rewrite everything
     python experiments/make_shipped_codes.py --check    # verify the files match
 
-Every matrix comes from a seeded construction in ``ldpcmarg.construct``, so
+Every matrix comes from a seeded construction in ``ldpcmarg.code.construct``, so
 running this script again reproduces the files byte for byte (``--check``
 says whether they still do). The cards record construction, seed, parameters,
 girth and minimum distance (exact, or an upper bound with the search budget).
@@ -23,8 +23,8 @@ ROOT = Path(__file__).resolve().parent.parent
 if str(ROOT) not in sys.path:  # run from a checkout without installing
     sys.path.insert(0, str(ROOT))
 
-from ldpcmarg import construct as C  # noqa: E402
-from ldpcmarg.io import save_code  # noqa: E402
+from ldpcmarg.code import construct as C  # noqa: E402
+from ldpcmarg.code.io import save_code  # noqa: E402
 
 OUT = ROOT / "ldpcmarg" / "codes"
 

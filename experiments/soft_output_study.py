@@ -48,11 +48,11 @@ ROOT = Path(__file__).resolve().parents[1]
 if str(ROOT) not in sys.path:
     sys.path.insert(0, str(ROOT))
 
-from ldpcmarg.compare import compare_decoders  # noqa: E402
-from ldpcmarg.construct import peg  # noqa: E402
+from ldpcmarg.analysis.compare import compare_decoders  # noqa: E402
+from ldpcmarg.code.construct import peg  # noqa: E402
+from ldpcmarg.code.io import load_code  # noqa: E402
 from ldpcmarg.decoders.base import make_decoder  # noqa: E402
 from ldpcmarg.errors import InputError  # noqa: E402
-from ldpcmarg.io import load_code  # noqa: E402
 
 
 def decoder_specs(fw_time_limit: float, fw_max_iter: int) -> list[tuple[str, str]]:
@@ -188,7 +188,7 @@ def run(args) -> int:
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from ldpcmarg.compare_plots import (
+    from ldpcmarg.plots.compare import (
         plot_calibration_error,
         plot_posterior_error,
         plot_reliability,

@@ -36,7 +36,7 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 import ldpcmarg as lm  # noqa: E402
-from ldpcmarg.construct import random_regular  # noqa: E402
+from ldpcmarg.code.construct import random_regular  # noqa: E402
 
 OUT = Path(__file__).resolve().parent / "results" / "throughput_scaling"
 

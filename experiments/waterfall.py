@@ -35,8 +35,8 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 import ldpcmarg as lm  # noqa: E402
-from ldpcmarg.plots import curves_from_sweep, plot_curves  # noqa: E402
-from ldpcmarg.simulate import StopRule, simulate  # noqa: E402
+from ldpcmarg.engine.simulate import StopRule, simulate  # noqa: E402
+from ldpcmarg.plots.curves import curves_from_sweep, plot_curves  # noqa: E402
 
 OUT = Path(__file__).resolve().parent / "results" / "waterfall"
 
@@ -82,7 +82,7 @@ QUICK = {
 
 def de_threshold(code, quick: bool) -> float | None:
     """BP threshold Eb/N0 (dB) of the code's degree distribution (None if it fails)."""
-    from ldpcmarg.density_evolution import DegreeDistribution, compute_threshold
+    from ldpcmarg.analysis.density_evolution import DegreeDistribution, compute_threshold
 
     try:
         dd = DegreeDistribution.from_code(code)

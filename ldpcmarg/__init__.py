@@ -6,21 +6,27 @@ Main entry points::
     code = lm.load_code("tanner-155-64")
     dec = lm.make_decoder("sum-product", code, max_iter=50)
     res = dec.decode(llr)
+
+The package is grouped by layer: ``code/`` (code model, GF(2), constructions,
+files), ``link/`` (channels), ``decoders/``, ``engine/`` (Monte Carlo sweep,
+store, executors), ``analysis/``, ``plots/``; the names below are the public
+entry points.
 """
 
 from ._version import __version__
-from .channels import make_channel
-from .code import ParityCheckCode
+from .code.parity_check import ParityCheckCode
 from .decoders.base import Decoder, DecodeResult, decoder_names, make_decoder
+from .engine.simulate import simulate
 from .errors import InputError, LdpcmargError, SolverError, StoreError
+from .link.channels import make_channel
 
 
 def load_code(name_or_path, **kwargs):
     """Load a shipped code by name or a parity-check matrix file (.mtx, .txt, .npz).
 
-    See :func:`ldpcmarg.io.load_code`.
+    See :func:`ldpcmarg.code.io.load_code`.
     """
-    from .io import load_code as _load
+    from .code.io import load_code as _load
 
     return _load(name_or_path, **kwargs)
 
@@ -28,9 +34,9 @@ def load_code(name_or_path, **kwargs):
 def save_code(code, path, fmt=None):
     """Write a code's parity-check matrix (.mtx, .txt or .npz).
 
-    See :func:`ldpcmarg.io.save_code`.
+    See :func:`ldpcmarg.code.io.save_code`.
     """
-    from .io import save_code as _save
+    from .code.io import save_code as _save
 
     return _save(code, path, fmt=fmt)
 
@@ -43,6 +49,7 @@ __all__ = [
     "decoder_names",
     "make_decoder",
     "make_channel",
+    "simulate",
     "load_code",
     "save_code",
     "LdpcmargError",

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from ldpcmarg.code import ParityCheckCode
+from ldpcmarg.code.parity_check import ParityCheckCode
 
 # Hamming(7,4) parity-check matrix, columns are the binary numbers 1..7
 # (standard textbook form; MacWilliams & Sloane ch. 1).

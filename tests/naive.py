@@ -16,7 +16,7 @@ import itertools
 
 import numpy as np
 
-from ldpcmarg import gf2
+from ldpcmarg.code import gf2
 
 
 def all_words(n: int) -> np.ndarray:

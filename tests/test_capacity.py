@@ -7,7 +7,7 @@ import math
 import numpy as np
 import pytest
 
-from ldpcmarg import capacity as cap
+from ldpcmarg.analysis import capacity as cap
 from ldpcmarg.errors import InputError
 
 

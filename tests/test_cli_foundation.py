@@ -89,7 +89,7 @@ def test_inspect_list(capsys):
 ])
 @pytest.mark.parametrize("ext", ["txt", "mtx", "npz"])
 def test_build_then_load(tmp_path, capsys, args, check, ext):
-    from ldpcmarg.io import load_code
+    from ldpcmarg.code.io import load_code
     out_path = tmp_path / f"c.{ext}"
     status, out, err = run(["build", *args, "-o", str(out_path)], capsys)
     assert status == 0, err

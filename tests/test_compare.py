@@ -11,14 +11,14 @@ import numpy as np
 import pytest
 from naive import exact_posteriors as naive_posteriors
 
-from ldpcmarg.capacity import biawgn_capacity
+from ldpcmarg.analysis.capacity import biawgn_capacity
+from ldpcmarg.analysis.compare import compare_decoders, posterior_errors, random_codewords
 from ldpcmarg.cli import main
+from ldpcmarg.code.construct import tree_code
+from ldpcmarg.code.io import load_code, save_code
 from ldpcmarg.commands.compare import parse_points
-from ldpcmarg.compare import compare_decoders, posterior_errors, random_codewords
-from ldpcmarg.construct import tree_code
 from ldpcmarg.decoders.base import make_decoder
 from ldpcmarg.errors import InputError
-from ldpcmarg.io import load_code, save_code
 
 SP = "sum-product:early_stop=false,max_iter=60"
 
@@ -163,7 +163,7 @@ def test_bad_arguments(hamming74):
 
 
 def test_json_and_figures(tmp_path, hamming74):
-    from ldpcmarg.compare_plots import save_compare_figures
+    from ldpcmarg.plots.compare import save_compare_figures
 
     res = compare_decoders(hamming74, [SP, "min-sum:early_stop=false", "bit-flipping"],
                            snr=[1.0, 3.0], frames=50, seed=0)
@@ -181,7 +181,7 @@ def test_json_and_figures(tmp_path, hamming74):
 
 
 def test_matplotlib_is_imported_lazily():
-    code = ("import sys, ldpcmarg.compare, ldpcmarg.compare_plots; "
+    code = ("import sys, ldpcmarg.analysis.compare, ldpcmarg.plots.compare; "
             "print('matplotlib' in sys.modules)")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
     assert out.stdout.strip() == "False", out.stderr

@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 import ldpcmarg as lm
-from ldpcmarg import construct as C
+from ldpcmarg.code import construct as C
 from ldpcmarg.errors import InputError
 
 ROOT = Path(__file__).resolve().parent.parent

@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 import ldpcmarg as lm
-from ldpcmarg.code import ParityCheckCode
+from ldpcmarg.code.parity_check import ParityCheckCode
 from ldpcmarg.errors import InputError
 
 

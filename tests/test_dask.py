@@ -11,9 +11,9 @@ import distributed
 import pytest
 
 from ldpcmarg.cli import main
+from ldpcmarg.engine.executors import ClusterError, DaskExecutor, ProcessExecutor
+from ldpcmarg.engine.simulate import StopRule, simulate
 from ldpcmarg.errors import MissingExtraError
-from ldpcmarg.executors import ClusterError, DaskExecutor, ProcessExecutor
-from ldpcmarg.simulate import StopRule, simulate
 
 DECODERS = ["sum-product", "min-sum:alpha=0.8,max_iter=20"]
 SNR = [1.0, 2.5, 4.0]

@@ -12,9 +12,8 @@ from cli_helpers import run_cli as _run
 from scipy.integrate import quad
 from scipy.optimize import minimize_scalar
 
-import ldpcmarg.density_evolution as de
-from ldpcmarg.code import ParityCheckCode
-from ldpcmarg.density_evolution import (
+import ldpcmarg.analysis.density_evolution as de
+from ldpcmarg.analysis.density_evolution import (
     DegreeDistribution,
     awgn_evolution_discretized,
     awgn_threshold_discretized,
@@ -27,6 +26,7 @@ from ldpcmarg.density_evolution import (
     phi,
     phi_inverse,
 )
+from ldpcmarg.code.parity_check import ParityCheckCode
 from ldpcmarg.errors import InputError
 
 # An irregular rate-1/2 pair used only as a sample ensemble (our own choice).

@@ -15,8 +15,8 @@ import pytest
 from conftest import HAMMING_7_4
 from scipy.special import logsumexp
 
-from ldpcmarg import construct
-from ldpcmarg.code import ParityCheckCode
+from ldpcmarg.code import construct
+from ldpcmarg.code.parity_check import ParityCheckCode
 from ldpcmarg.decoders.base import make_decoder
 from ldpcmarg.decoders.exact import choose_method, exact_posteriors
 from ldpcmarg.errors import InputError

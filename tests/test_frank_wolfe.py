@@ -9,9 +9,9 @@ import pytest
 from test_hyperforest import golay24, random_regular_code, random_tree_code
 
 import ldpcmarg as lm
-from ldpcmarg import gf2
 from ldpcmarg._settings import LLR_MAX
-from ldpcmarg.code import ParityCheckCode
+from ldpcmarg.code import gf2
+from ldpcmarg.code.parity_check import ParityCheckCode
 from ldpcmarg.decoders import frank_wolfe as fw
 from ldpcmarg.decoders.lp import LocalPolytopeLP
 from ldpcmarg.errors import InputError

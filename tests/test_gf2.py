@@ -11,7 +11,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
 
-from ldpcmarg import gf2
+from ldpcmarg.code import gf2
 from ldpcmarg.errors import InputError
 
 

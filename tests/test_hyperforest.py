@@ -6,9 +6,9 @@ import numpy as np
 import pytest
 from naive import regular_H_by_redraw
 
-from ldpcmarg.code import ParityCheckCode
+from ldpcmarg.code.hyperforest import check_concavity, sample_hyperforests, trw_check_weights
+from ldpcmarg.code.parity_check import ParityCheckCode
 from ldpcmarg.errors import InputError
-from ldpcmarg.hyperforest import check_concavity, sample_hyperforests, trw_check_weights
 
 
 def random_regular_code(n: int, dv: int, dc: int, seed: int) -> ParityCheckCode:

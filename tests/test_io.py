@@ -12,9 +12,9 @@ from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
 
 import ldpcmarg as lm
-from ldpcmarg.code import ParityCheckCode
+from ldpcmarg.code.io import load_code, save_code, shipped_codes
+from ldpcmarg.code.parity_check import ParityCheckCode
 from ldpcmarg.errors import CodeFileError, InputError
-from ldpcmarg.io import load_code, save_code, shipped_codes
 
 HEADER_MTX = "%%MatrixMarket matrix coordinate pattern general\n"
 
@@ -154,7 +154,7 @@ def test_shipped_codes_listed_with_cards():
 
 
 def test_shipped_name_and_path_agree():
-    from ldpcmarg.io import shipped_code_dir
+    from ldpcmarg.code.io import shipped_code_dir
     path = Path(str(shipped_code_dir() / "tanner-155-64.mtx"))
     assert load_code(path).fingerprint == load_code("tanner-155-64").fingerprint
     root_link = Path(__file__).resolve().parent.parent / "codes" / "tanner-155-64.mtx"

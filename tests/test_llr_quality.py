@@ -1,4 +1,4 @@
-"""Mutual information and calibration of LLRs (ldpcmarg.llr_quality)."""
+"""Mutual information and calibration of LLRs (ldpcmarg.analysis.llr_quality)."""
 
 from __future__ import annotations
 
@@ -8,15 +8,15 @@ import numpy as np
 import pytest
 from scipy import integrate
 
-from ldpcmarg.channels import make_channel
-from ldpcmarg.errors import InputError
-from ldpcmarg.llr_quality import (
+from ldpcmarg.analysis.llr_quality import (
     calibration,
     error_probability,
     fit_llr_scale,
     mutual_information,
     prob_one,
 )
+from ldpcmarg.errors import InputError
+from ldpcmarg.link.channels import make_channel
 
 
 def biawgn_capacity_quad(sigma: float) -> float:
@@ -56,9 +56,9 @@ def test_mutual_information_matches_biawgn_capacity(esn0_db):
 
 
 def test_capacity_quadrature_agrees_with_library():
-    # Cross-check of the test's own integral against ldpcmarg.capacity
+    # Cross-check of the test's own integral against ldpcmarg.analysis.capacity
     # (two independent codings of the same formula).
-    from ldpcmarg.capacity import biawgn_capacity
+    from ldpcmarg.analysis.capacity import biawgn_capacity
 
     for s in (0.5, 0.8809, 1.3):
         assert abs(biawgn_capacity_quad(s) - biawgn_capacity(s)) < 1e-8

@@ -20,7 +20,7 @@ from conftest import HAMMING_7_4
 from naive import regular_H_by_redraw
 from scipy.optimize import linprog
 
-from ldpcmarg.code import ParityCheckCode
+from ldpcmarg.code.parity_check import ParityCheckCode
 from ldpcmarg.decoders.base import make_decoder
 from ldpcmarg.decoders.lp import LocalPolytopeLP
 from ldpcmarg.errors import InputError
@@ -287,7 +287,7 @@ def test_ml_decoder_matches_brute_force_and_pickles(seed, formulation):
 @pytest.mark.parametrize("formulation,frames", [("parity", 16), ("local", 4)])
 def test_ml_decoder_on_golay_frames(formulation, frames):
     """MIP decoding equals brute-force ML over the 4096 Golay codewords."""
-    from ldpcmarg import construct
+    from ldpcmarg.code import construct
 
     code = construct.golay24()
     G = code.H.toarray().astype(np.int64)

@@ -22,7 +22,7 @@ from conftest import HAMMING_7_4
 from naive import regular_H_by_redraw
 from scipy.optimize import linprog, minimize
 
-from ldpcmarg.code import ParityCheckCode
+from ldpcmarg.code.parity_check import ParityCheckCode
 from ldpcmarg.decoders.lp_dual import (
     DualAscent,
     DualCandidateOracle,

@@ -19,9 +19,9 @@ from naive import (
 
 import ldpcmarg as lm
 from ldpcmarg._settings import LLR_MAX
-from ldpcmarg.channels import make_channel
-from ldpcmarg.code import ParityCheckCode
+from ldpcmarg.code.parity_check import ParityCheckCode
 from ldpcmarg.errors import InputError
+from ldpcmarg.link.channels import make_channel
 
 SOFT = ["sum-product", "layered-sum-product", "min-sum", "offset-min-sum", "layered-min-sum",
         "reweighted-sum-product"]
@@ -274,9 +274,9 @@ def test_reweighted_trw_option_calls_hyperforest(code96, monkeypatch):
         calls["args"] = (code.m, num_samples, seed)
         return np.full(code.m, 0.25)
 
-    mod = types.ModuleType("ldpcmarg.hyperforest")
+    mod = types.ModuleType("ldpcmarg.code.hyperforest")
     mod.trw_check_weights = fake
-    monkeypatch.setitem(sys.modules, "ldpcmarg.hyperforest", mod)
+    monkeypatch.setitem(sys.modules, "ldpcmarg.code.hyperforest", mod)
     monkeypatch.setattr(lm, "hyperforest", mod, raising=False)
     dec = lm.make_decoder("reweighted-sum-product", code96, rho="trw", trw_samples=7, trw_seed=3)
     assert calls["args"] == (code96.m, 7, 3)

@@ -11,13 +11,7 @@ import numpy as np
 import pytest
 from naive import exact_posteriors as naive_posteriors
 
-from ldpcmarg.channels import make_channel
-from ldpcmarg.cli import main
-from ldpcmarg.code import ParityCheckCode
-from ldpcmarg.construct import tree_code
-from ldpcmarg.errors import InputError
-from ldpcmarg.io import save_code
-from ldpcmarg.posteriors import (
+from ldpcmarg.analysis.posteriors import (
     PosteriorResult,
     compute_posteriors,
     output_paths,
@@ -27,6 +21,12 @@ from ldpcmarg.posteriors import (
     read_posteriors,
     write_posteriors,
 )
+from ldpcmarg.cli import main
+from ldpcmarg.code.construct import tree_code
+from ldpcmarg.code.io import save_code
+from ldpcmarg.code.parity_check import ParityCheckCode
+from ldpcmarg.errors import InputError
+from ldpcmarg.link.channels import make_channel
 
 SP = "sum-product:early_stop=false,max_iter=60"
 

@@ -7,11 +7,11 @@ import pytest
 from scipy.special import erfc
 from scipy.stats import fisher_exact
 
-from ldpcmarg.code import ParityCheckCode
-from ldpcmarg.construct import random_regular
+from ldpcmarg.code.construct import random_regular
+from ldpcmarg.code.parity_check import ParityCheckCode
+from ldpcmarg.engine.simulate import StopRule, parse_grid, point_key, simulate
+from ldpcmarg.engine.store import Store
 from ldpcmarg.errors import InputError
-from ldpcmarg.simulate import StopRule, parse_grid, point_key, simulate
-from ldpcmarg.store import Store
 
 COUNTS = ("frames", "bit_errors", "info_bit_errors", "bit_errors_sq", "frame_errors",
           "undetected_errors", "iterations", "chunks")
@@ -51,8 +51,8 @@ def test_point_key_is_value_based():
 
 
 def test_fast_all_zero_llr_is_bit_identical_to_channel():
-    from ldpcmarg.channels import make_channel
-    from ldpcmarg.simulate import _all_zero_llr
+    from ldpcmarg.engine.simulate import _all_zero_llr
+    from ldpcmarg.link.channels import make_channel
 
     for ch in (make_channel("awgn", ebn0_db=1.7, rate=0.5), make_channel("bsc", p=0.1),
                make_channel("bec", epsilon=0.3)):

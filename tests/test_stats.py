@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 from scipy.stats import binomtest
 
+from ldpcmarg.engine.stats import ber_interval, clopper_pearson
 from ldpcmarg.errors import InputError
-from ldpcmarg.stats import ber_interval, clopper_pearson
 
 
 @pytest.mark.parametrize("k,n", [(0, 10), (1, 10), (5, 10), (10, 10), (3, 1000), (97, 12345)])

@@ -7,9 +7,9 @@ import sqlite3
 import numpy as np
 import pytest
 
-from ldpcmarg.code import ParityCheckCode
+from ldpcmarg.code.parity_check import ParityCheckCode
+from ldpcmarg.engine.store import COUNT_FIELDS, Store
 from ldpcmarg.errors import StoreError
-from ldpcmarg.store import COUNT_FIELDS, Store
 from tests.conftest import HAMMING_7_4
 
 SETTINGS = {"channel": "awgn", "snr_kind": "ebn0_db", "seed": 1, "chunk_frames": 10}

@@ -7,9 +7,9 @@ from pathlib import Path
 import click
 import numpy as np
 
-from .. import construct as C
+from ..code import construct as C
+from ..code.io import load_code, save_code
 from ..errors import InputError
-from ..io import load_code, save_code
 
 _HELP = {
     "gallager": "Gallager (dv, dc)-regular: --length, --bit-degree, --check-degree, --seed.",
@@ -74,7 +74,7 @@ def build_code(construction: str, *, length=None, checks=None, bit_degree=None,
                check_degree=None, bit_dist=None, check_dist=None, perspective="edge",
                exponents=None, circulant=None, prime=None, block_rows=None, block_cols=None,
                parity_bits=None, min_degree=2, max_degree=4, order="ascending", seed=0):
-    """Dispatch a construction name and CLI-style options to :mod:`ldpcmarg.construct`."""
+    """Dispatch a construction name and CLI-style options to :mod:`ldpcmarg.code.construct`."""
     c = construction
     if c in ("gallager", "regular"):
         fn = C.gallager if c == "gallager" else C.random_regular

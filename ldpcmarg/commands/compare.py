@@ -13,7 +13,7 @@ from .posteriors import load_code_arg
 
 def parse_points(text: str, what: str) -> list[float]:
     """SNR points: ``"1,2,3"`` or ``"start:step:stop"`` (the same grid syntax as ``simulate``)."""
-    from ..simulate import parse_grid
+    from ..engine.simulate import parse_grid
 
     return parse_grid(text, option=f"--{what}")
 
@@ -59,7 +59,7 @@ def command(code, decoders, ebn0, esn0, sigma, bsc, bec, frames, seed, reference
     Tip: message-passing decoders stop at the first valid hard decision by
     default; add early_stop=false to compare converged soft outputs.
     """
-    from ..compare import compare_decoders
+    from ..analysis.compare import compare_decoders
 
     given = {k: v for k, v in dict(ebn0=ebn0, esn0=esn0, sigma=sigma, p=bsc, epsilon=bec).items()
              if v is not None}
@@ -91,7 +91,7 @@ def command(code, decoders, ebn0, esn0, sigma, bsc, bec, frames, seed, reference
             Path(json_path).write_text(json.dumps(res.to_dict(), indent=1, allow_nan=False))
             click.echo(f"wrote {json_path}")
     if plot_dir:
-        from ..compare_plots import save_compare_figures
+        from ..plots.compare import save_compare_figures
 
         paths = save_compare_figures(res, plot_dir, force=force)
         click.echo("wrote " + ", ".join(str(p) for p in paths), err=json_path == "-")

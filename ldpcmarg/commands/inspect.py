@@ -7,8 +7,8 @@ import json
 import click
 import numpy as np
 
+from ..code.io import load_code, shipped_codes
 from ..errors import InputError
-from ..io import load_code, shipped_codes
 
 #: Default information-set budget of the minimum-distance search, by code length.
 AUTO_BUDGETS = ((1200, 100), (4096, 20))

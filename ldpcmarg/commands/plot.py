@@ -44,13 +44,13 @@ def command(sources, output, run, metric, lines, threshold_codes, no_uncoded, no
     confidence intervals; the uncoded BPSK curve 1/2 erfc(sqrt(Eb/N0)) and
     the Shannon limit of each code rate are drawn for reference.
     """
-    from ..plots import check_figure_path, curves_from_file, curves_from_store, plot_curves
+    from ..plots.curves import check_figure_path, curves_from_file, curves_from_store, plot_curves
 
     check_figure_path(output)
     extra = _thresholds(lines)
     if threshold_codes:
         from .. import load_code
-        from ..density_evolution import DegreeDistribution, compute_threshold
+        from ..analysis.density_evolution import DegreeDistribution, compute_threshold
 
         for name in threshold_codes:
             code = load_code(name)

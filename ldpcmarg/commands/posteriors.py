@@ -12,12 +12,13 @@ _CHANNEL_FLAGS = ("ebn0", "esn0", "sigma", "bsc", "bec")
 
 
 def load_code_arg(name_or_path: str):
-    """Load a shipped code by name or a matrix file (via :mod:`ldpcmarg.io`)."""
+    """Load a shipped code by name or a matrix file (via :mod:`ldpcmarg.code.io`)."""
     try:
-        from ..io import load_code
+        from ..code.io import load_code
     except ModuleNotFoundError as exc:
-        if exc.name == "ldpcmarg.io":
-            raise InputError("Loading codes needs ldpcmarg.io, missing from this build.") from exc
+        if exc.name == "ldpcmarg.code.io":
+            raise InputError(
+                "Loading codes needs ldpcmarg.code.io, missing from this build.") from exc
         raise
     return load_code(name_or_path)
 
@@ -71,7 +72,12 @@ def command(code, input_path, output, decoder, ebn0, esn0, sigma, bsc, bec, key,
     (duality gap, ln Z bound, ML certificate, ...) go into the .npz or the
     JSON sidecar. Existing outputs are kept unless --force is given.
     """
-    from ..posteriors import compute_posteriors, output_paths, read_frames, write_posteriors
+    from ..analysis.posteriors import (
+        compute_posteriors,
+        output_paths,
+        read_frames,
+        write_posteriors,
+    )
 
     spec = channel_spec_from_flags(ebn0=ebn0, esn0=esn0, sigma=sigma, bsc=bsc, bec=bec)
     # check the output target before the (possibly long) decoding

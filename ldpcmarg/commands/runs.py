@@ -12,7 +12,7 @@ import click
 @click.option("--json", "as_json", is_flag=True, help="Print JSON (runs and counted results).")
 def command(store, as_json):
     """List the runs in results STORE: settings, decoders, points and chunks."""
-    from ..store import Store
+    from ..engine.store import Store
 
     with Store.open_reader(store) as st:
         meta = st.meta()

@@ -18,9 +18,9 @@ GRID_HELP = ("a,b,c or start:step:stop (stop included when it lies on the grid; 
 
 def _load_code(name_or_path):
     try:
-        from ..io import load_code
+        from ..code.io import load_code
     except ModuleNotFoundError as exc:  # pragma: no cover - only while io.py is missing
-        raise InputError("Loading codes needs ldpcmarg.io, missing from this build.") from exc
+        raise InputError("Loading codes needs ldpcmarg.code.io, missing from this build.") from exc
     return load_code(name_or_path)
 
 
@@ -163,8 +163,8 @@ def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_f
     FER intervals are Clopper-Pearson; BER intervals treat the frame as the
     sampling unit (bit errors come in bursts).
     """
-    from ..simulate import StopRule, parse_grid, simulate
-    from ..store import Store
+    from ..engine.simulate import StopRule, parse_grid, simulate
+    from ..engine.store import Store
 
     # ---- validate everything before touching the store
     if seed < 0:
@@ -196,14 +196,14 @@ def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_f
             if not os.path.isdir(parent):
                 raise InputError(f"{what}: directory {parent!r} does not exist.")
     if plot_path is not None:
-        from ..plots import check_figure_path
+        from ..plots.curves import check_figure_path
 
         check_figure_path(plot_path)
     code_obj = _load_code(code)
     # decoders and SNR values are checked by simulate() before it writes anything;
     # check them here too so that a bad spec never opens the store
     from ..decoders.base import make_decoder
-    from ..simulate import SNR_KINDS, _point_channel
+    from ..engine.simulate import SNR_KINDS, _point_channel
 
     for spec in decoders:
         make_decoder(spec, code_obj)
@@ -215,7 +215,7 @@ def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_f
         raise InputError("--workers is for the local process pool; with --cluster the "
                          "cluster's workers run the chunks. Give one of the two.")
     if cluster:
-        from ..executors import DaskExecutor
+        from ..engine.executors import DaskExecutor
 
         if not cluster_timeout > 0:
             raise InputError(f"--cluster-timeout must be > 0; got {cluster_timeout}.")
@@ -250,6 +250,6 @@ def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_f
     if csv_path:
         res.write_csv(csv_path)
     if plot_path:
-        from ..plots import curves_from_sweep, plot_curves
+        from ..plots.curves import curves_from_sweep, plot_curves
 
         plot_curves(curves_from_sweep(res), plot_path)

@@ -17,7 +17,7 @@ _METHOD_NAMES = {
 
 def _ensemble(code, regular, var_edges, check_edges, var_nodes, check_nodes):
     """Build the DegreeDistribution from exactly one of the accepted sources."""
-    from ..density_evolution import DegreeDistribution
+    from ..analysis.density_evolution import DegreeDistribution
 
     sources = [code is not None, regular is not None,
                var_edges is not None or check_edges is not None,
@@ -33,9 +33,9 @@ def _ensemble(code, regular, var_edges, check_edges, var_nodes, check_nodes):
 
             c = load_code(code)
         except ModuleNotFoundError as exc:
-            if exc.name == "ldpcmarg.io":
+            if exc.name == "ldpcmarg.code.io":
                 raise InputError("Loading codes is not available in this build "
-                                 "(ldpcmarg.io is missing).") from exc
+                                 "(ldpcmarg.code.io is missing).") from exc
             raise
         return DegreeDistribution.from_code(c)
     if regular is not None:
@@ -71,7 +71,7 @@ def _settings_text(res) -> str:
 
 def format_result(res) -> str:
     """Readable multi-line report of a :class:`ThresholdResult`."""
-    from ..density_evolution import _poly_text
+    from ..analysis.density_evolution import _poly_text
 
     ens = res.ensemble
     lines = []
@@ -157,7 +157,7 @@ def command(code, regular, var_edges, check_edges, var_nodes, check_nodes, chann
     probability eps*, AWGN noise sigma* with Es = 1) and, for the AWGN
     channel, as Eb/N0 at the design rate, next to the Shannon limit.
     """
-    from ..density_evolution import METHODS, compute_threshold
+    from ..analysis.density_evolution import METHODS, compute_threshold
 
     dd = _ensemble(code, regular, var_edges, check_edges, var_nodes, check_nodes)
     method = method or METHODS[channel][0]

@@ -42,9 +42,9 @@ import numba as nb
 import numpy as np
 from scipy.special import expit
 
-from .. import gf2
 from .._params import Param
 from .._settings import NUMBA_OPTS
+from ..code import gf2
 from ..errors import InputError
 from .base import Decoder, DecodeResult, check_llr
 
@@ -322,7 +322,7 @@ def exact_posteriors(code, llr, method: str = "auto") -> ExactResult:
     Examples
     --------
     >>> import numpy as np
-    >>> from ldpcmarg.code import ParityCheckCode
+    >>> from ldpcmarg.code.parity_check import ParityCheckCode
     >>> rep3 = ParityCheckCode(np.array([[1, 1, 0], [0, 1, 1]]))  # {000, 111}
     >>> res = exact_posteriors(rep3, np.array([1.0, 1.0, -1.0]))
     >>> bool(np.isclose(res.log_partition[0], np.log(1 + np.exp(-1.0)), rtol=1e-14))

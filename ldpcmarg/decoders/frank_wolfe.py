@@ -22,7 +22,7 @@ vector orthogonal to the affine hull of ``L``).
 
 Entropy weights: ``"bethe"`` (``rho = 1``; exact on cycle-free codes, non-convex
 otherwise), ``"trw"`` (``rho`` from sampled maximal hyperforests,
-:func:`ldpcmarg.hyperforest.trw_check_weights`; ``F`` convex and
+:func:`ldpcmarg.code.hyperforest.trw_check_weights`; ``F`` convex and
 ``ln Z <= -(F(tau) - gap)``), or a user array (with a report of whether the
 sufficient concavity condition holds).
 
@@ -1029,7 +1029,7 @@ class FrankWolfeDecoder(Decoder):
     }
 
     def _setup(self) -> None:
-        from ..hyperforest import check_concavity, sample_hyperforests
+        from ..code.hyperforest import check_concavity, sample_hyperforests
 
         ent = self.options["entropy"]
         m = self.code.m

@@ -4,7 +4,7 @@ The local polytope ``L`` of a code (DESIGN.md section 4) has one column per bit,
 ``tau_i = P(x_i = 1)`` in ``[0, 1]``, then one column ``tau_c(S) >= 0`` per
 local codeword ``S`` of every check ``c`` (the even-weight patterns on the
 check's neighbourhood, in the global order of
-:meth:`ldpcmarg.code.ParityCheckCode.local_codewords`). Rows:
+:meth:`ldpcmarg.code.parity_check.ParityCheckCode.local_codewords`). Rows:
 
 * per check ``c``: ``sum_S tau_c(S) = 1``  (rows ``0 .. m-1``);
 * per edge ``e = (c, i)`` in check-major order:
@@ -120,7 +120,7 @@ class LPSolution:
         keeps its best feasible codeword here, with ``optimal`` False).
     local : ndarray of shape (L,), float64
         Local-codeword weights in the flat layout of
-        :class:`~ldpcmarg.code.LocalCodewords` (NaN like ``bits``).
+        :class:`~ldpcmarg.code.parity_check.LocalCodewords` (NaN like ``bits``).
     objective : float
         ``<bit_costs, bits> + <local_costs, local>`` (NaN without a solution).
     status : str
@@ -207,7 +207,7 @@ class LocalPolytopeLP:
     Examples
     --------
     >>> import numpy as np
-    >>> from ldpcmarg.code import ParityCheckCode
+    >>> from ldpcmarg.code.parity_check import ParityCheckCode
     >>> code = ParityCheckCode(np.array([[1, 1, 0], [0, 1, 1]]))
     >>> lp = LocalPolytopeLP(code)
     >>> sol = lp.solve(np.array([1.0, -3.0, 1.0]))

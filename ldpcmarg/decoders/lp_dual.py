@@ -40,7 +40,7 @@ This module offers
   ``LocalPolytopeLP`` that returns a primal point proved optimal (within a
   tolerance) by the dual bound, and falls back to an exact LP solver otherwise.
 
-Local codewords use the flat layout of :class:`ldpcmarg.code.LocalCodewords`.
+Local codewords use the flat layout of :class:`ldpcmarg.code.parity_check.LocalCodewords`.
 
 Use in Frank–Wolfe (certify first, then solve)::
 

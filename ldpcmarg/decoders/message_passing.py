@@ -1,7 +1,7 @@
 """Message-passing decoders: sum-product, min-sum family, layered, reweighted, bit flipping.
 
 All decoders work on the flat Tanner-graph arrays of
-:class:`~ldpcmarg.code.ParityCheckCode` (check-major edge order) and decode a
+:class:`~ldpcmarg.code.parity_check.ParityCheckCode` (check-major edge order) and decode a
 batch of F frames at once; chunks of frames run in parallel (``numba.prange``
 over chunks), each chunk owning its message buffers.
 
@@ -483,7 +483,7 @@ def _local_beliefs_kernel(L, c2v, check_ptr, edge_var, lc_offset, lc_bit_ptr, lc
     """Check beliefs ``tau_c(S) ~ exp(-sum_{t} S_t v_t)`` with ``v_t = L_i - c2v_e`` (cavity LLRs).
 
     ``out`` (number of local codewords,) receives the normalised beliefs in the
-    flat :class:`~ldpcmarg.code.LocalCodewords` layout.
+    flat :class:`~ldpcmarg.code.parity_check.LocalCodewords` layout.
     """
     m = check_ptr.shape[0] - 1
     for c in range(m):
@@ -773,7 +773,7 @@ class ReweightedSumProductDecoder(_MessagePassing):
     rho : float, ndarray of shape (m,), or "trw"
         Check weights (>= 0). Default 1.0 (Bethe, i.e. sum-product with damping).
         ``"trw"`` samples hyperforests with
-        :func:`ldpcmarg.hyperforest.trw_check_weights` (``trw_samples``,
+        :func:`ldpcmarg.code.hyperforest.trw_check_weights` (``trw_samples``,
         ``trw_seed``), giving a convex free energy.
     damping : float in [0, 1)
         Default 0.5: reweighted updates with ``rho < 1`` feed back
@@ -815,10 +815,11 @@ class ReweightedSumProductDecoder(_MessagePassing):
                     f"({m},) or 'trw'; got {rho!r}."
                 )
             try:
-                from .. import hyperforest
+                from ..code import hyperforest
             except ModuleNotFoundError as exc:
                 raise InputError(
-                    "rho='trw' needs ldpcmarg.hyperforest, which is not available in this build."
+                    "rho='trw' needs ldpcmarg.code.hyperforest, which is not available "
+                    "in this build."
                 ) from exc
             arr = hyperforest.trw_check_weights(
                 self.code, num_samples=self.options["trw_samples"], seed=self.options["trw_seed"]

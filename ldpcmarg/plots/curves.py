@@ -9,7 +9,7 @@ Reference lines (AWGN, Eb/N0 axis):
 * uncoded BPSK, ``BER = Q(sqrt(2 Eb/N0)) = 1/2 erfc(sqrt(Eb/N0))`` (standard
   textbook result, e.g. Proakis, *Digital Communications*);
 * the Shannon limit of each code rate for binary-input AWGN
-  (:func:`ldpcmarg.capacity.shannon_limit_ebn0_db`), a vertical line;
+  (:func:`ldpcmarg.analysis.capacity.shannon_limit_ebn0_db`), a vertical line;
 * optional thresholds (e.g. density-evolution BP thresholds) passed as
   ``thresholds={label: ebn0_db}``.
 
@@ -28,7 +28,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = ["Curve", "curves_from_sweep", "curves_from_store", "curves_from_file",
            "plot_curves", "check_figure_path", "uncoded_bpsk_ber", "FIGURE_FORMATS"]
@@ -104,7 +104,7 @@ def _x_of(snr_kind: str, snr: float, rate: float) -> tuple[str, float]:
 
 
 def curves_from_sweep(result, code_label: str | None = None) -> list[Curve]:
-    """Curves of a :class:`~ldpcmarg.simulate.SweepResult`, one per decoder."""
+    """Curves of a :class:`~ldpcmarg.engine.simulate.SweepResult`, one per decoder."""
     name = code_label if code_label is not None else result.code.get("name", "")
     recs = []
     for p in result.points:
@@ -119,8 +119,8 @@ def curves_from_sweep(result, code_label: str | None = None) -> list[Curve]:
 
 def curves_from_store(path, run: int | None = None, confidence: float = 0.95) -> list[Curve]:
     """Curves from the counted results of a results store (all runs, or one)."""
-    from . import stats
-    from .store import Store
+    from ..engine import stats
+    from ..engine.store import Store
 
     with Store.open_reader(path) as st:
         meta = st.meta()
@@ -206,7 +206,7 @@ def curves_from_file(path) -> list[Curve]:
 
 def _shannon_x(kind: str, rate: float) -> float | None:
     try:
-        from . import capacity
+        from ..analysis import capacity
     except ImportError:  # pragma: no cover
         return None
     try:

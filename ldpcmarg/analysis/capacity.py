@@ -19,7 +19,7 @@ import math
 import numpy as np
 from scipy import integrate, optimize
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = [
     "binary_entropy",

@@ -34,7 +34,7 @@ import os
 import sqlite3
 from dataclasses import dataclass
 
-from .errors import StoreError
+from ..errors import StoreError
 
 __all__ = ["Store", "COUNT_FIELDS", "SCHEMA_VERSION"]
 

@@ -13,7 +13,7 @@ point the comparison reports
   a decoder the caller names;
 * calibration of the soft outputs against the transmitted bits
   (reliability-diagram data and expected calibration error, see
-  :func:`ldpcmarg.llr_quality.calibration`) and the mutual information
+  :func:`ldpcmarg.analysis.llr_quality.calibration`) and the mutual information
   between transmitted bits and output LLRs;
 * iterations and wall-clock time per frame.
 
@@ -31,9 +31,9 @@ from typing import Any
 import numpy as np
 from scipy.special import expit
 
-from .channels import make_channel
-from .decoders.base import Decoder, make_decoder
-from .errors import InputError, LdpcmargError
+from ..decoders.base import Decoder, make_decoder
+from ..errors import InputError, LdpcmargError
+from ..link.channels import make_channel
 from .llr_quality import CalibrationResult, calibration, mutual_information
 
 __all__ = [
@@ -303,7 +303,7 @@ def _channel_for(unit: str, value: float, rate: float):
 
 def _exact_reference(code, llr, method):
     try:
-        from .decoders.exact import exact_posteriors
+        from ..decoders.exact import exact_posteriors
     except ModuleNotFoundError as exc:
         if exc.name == "ldpcmarg.decoders.exact":
             raise InputError("Exact posteriors are not available in this build.") from exc
@@ -390,7 +390,7 @@ def compare_decoders(code, decoders, *, snr, snr_unit: str = "ebn0", frames: int
     exact_method : str
         Passed to ``exact_posteriors`` (``"auto"`` picks enumeration or trellis).
     num_bins, binning, min_prob
-        Calibration bins (see :func:`ldpcmarg.llr_quality.calibration`);
+        Calibration bins (see :func:`ldpcmarg.analysis.llr_quality.calibration`);
         the default log bins suit decoder outputs spanning many decades.
     warmup : bool
         Decode one frame with each decoder before timing (keeps numba
@@ -408,7 +408,7 @@ def compare_decoders(code, decoders, *, snr, snr_unit: str = "ebn0", frames: int
     Examples
     --------
     >>> import numpy as np
-    >>> from ldpcmarg.code import ParityCheckCode
+    >>> from ldpcmarg.code.parity_check import ParityCheckCode
     >>> rep = ParityCheckCode(np.array([[1, 1, 0], [0, 1, 1]]), name="rep3")  # cycle-free
     >>> res = compare_decoders(rep, ["sum-product:early_stop=false"], snr=[2.0], frames=20)
     >>> res.reference, res.rows[0].max_abs_error < 1e-12

@@ -31,8 +31,8 @@ import numba as nb
 import numpy as np
 import scipy.sparse as sp
 
-from ._settings import NUMBA_OPTS
-from .errors import InputError
+from .._settings import NUMBA_OPTS
+from ..errors import InputError
 
 __all__ = [
     "pack_rows",
@@ -105,7 +105,7 @@ def pack_matrix(M, col_order: np.ndarray | None = None) -> np.ndarray:
     ----------
     M : ndarray or scipy.sparse matrix of shape (r, c), 0/1
         Duplicate sparse coordinates are OR-ed (not summed mod 2);
-        :class:`~ldpcmarg.code.ParityCheckCode` rejects them before this point.
+        :class:`~ldpcmarg.code.parity_check.ParityCheckCode` rejects them before this point.
     col_order : ndarray of shape (c,), int, optional
         Column ``t`` of the packed result is column ``col_order[t]`` of ``M``.
 

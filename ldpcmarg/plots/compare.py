@@ -1,4 +1,4 @@
-"""Figures for :class:`ldpcmarg.compare.CompareResult` (matplotlib, imported lazily).
+"""Figures for :class:`ldpcmarg.analysis.compare.CompareResult` (matplotlib, imported lazily).
 
 Every function takes the result (plain data) and an optional matplotlib
 ``Axes``; with ``ax=None`` it makes a new figure. Error rates, posterior
@@ -14,7 +14,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = [
     "plot_reliability",

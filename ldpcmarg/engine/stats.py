@@ -29,7 +29,7 @@ import math
 
 import numpy as np
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = ["clopper_pearson", "ber_interval"]
 

@@ -29,8 +29,8 @@ from dataclasses import dataclass
 import numba as nb
 import numpy as np
 
-from ._settings import NUMBA_OPTS
-from .errors import InputError, SolverError
+from .._settings import NUMBA_OPTS
+from ..errors import InputError, SolverError
 
 __all__ = [
     "HyperforestSample",

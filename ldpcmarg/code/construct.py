@@ -2,7 +2,7 @@
 
 Every random construction takes a ``seed`` (int or ``numpy.random.SeedSequence``)
 and is deterministic for a given seed: the same arguments give the same
-matrix. Each function returns a :class:`~ldpcmarg.code.ParityCheckCode` whose
+matrix. Each function returns a :class:`~ldpcmarg.code.parity_check.ParityCheckCode` whose
 ``name`` is short and whose ``source`` records the call that made it.
 
 Degree distributions are written as ``{degree: fraction}`` dicts, in the edge
@@ -29,9 +29,9 @@ import numba as nb
 import numpy as np
 import scipy.sparse as sp
 
-from ._settings import NUMBA_OPTS
-from .code import ParityCheckCode
-from .errors import InputError
+from .._settings import NUMBA_OPTS
+from ..errors import InputError
+from .parity_check import ParityCheckCode
 
 __all__ = [
     "gallager",
@@ -368,7 +368,7 @@ def peg(n: int, m: int, var_degrees, seed=0, check_degrees=None,
 
     Examples
     --------
-    >>> from ldpcmarg.construct import peg
+    >>> from ldpcmarg.code.construct import peg
     >>> code = peg(504, 252, 3, seed=0)
     >>> code.girth(), set(code.check_degrees.tolist())
     (6, {6})

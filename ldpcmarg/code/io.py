@@ -48,8 +48,8 @@ import numpy as np
 import scipy.io
 import scipy.sparse as sp
 
-from .code import ParityCheckCode
-from .errors import CodeFileError, InputError
+from ..errors import CodeFileError, InputError
+from .parity_check import ParityCheckCode
 
 __all__ = ["load_code", "save_code", "shipped_codes", "shipped_code_dir", "FORMATS",
            "read_checks_text", "write_checks_text"]
@@ -351,7 +351,7 @@ def load_code(name_or_path, name: str | None = None, fmt: str | None = None) -> 
 
     Examples
     --------
-    >>> from ldpcmarg.io import load_code
+    >>> from ldpcmarg.code.io import load_code
     >>> code = load_code("tanner-155-64")
     >>> code.n, code.k, code.girth()
     (155, 64, 8)

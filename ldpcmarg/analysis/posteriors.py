@@ -45,9 +45,9 @@ from typing import Any
 import numpy as np
 from scipy.special import expit
 
-from .channels import ERASED, AWGNChannel, BECChannel, BSCChannel, Channel, make_channel
-from .decoders.base import Decoder, check_llr, make_decoder
-from .errors import InputError
+from ..decoders.base import Decoder, check_llr, make_decoder
+from ..errors import InputError
+from ..link.channels import ERASED, AWGNChannel, BECChannel, BSCChannel, Channel, make_channel
 
 __all__ = [
     "PosteriorResult",
@@ -448,7 +448,7 @@ def compute_posteriors(code, decoder=DEFAULT_DECODER, *, llr=None, outputs=None,
     Examples
     --------
     >>> import numpy as np
-    >>> from ldpcmarg.code import ParityCheckCode
+    >>> from ldpcmarg.code.parity_check import ParityCheckCode
     >>> spc = ParityCheckCode(np.array([[1, 1, 1]]))      # even-weight words of length 3
     >>> res = compute_posteriors(spc, outputs=[1, 0, 0], channel="bsc:p=0.1")
     >>> res.p1.round(4).tolist()   # codewords 000, 110, 101 one flip away, 011 three

@@ -46,7 +46,7 @@ Counts (per point and decoder)
 ------------------------------
 frames, bit errors over information bits (``code.encoder.info_positions``)
 and over all ``n`` bits, with the per-frame sums of squares for the BER
-interval (:mod:`ldpcmarg.stats`), frame errors (decoded word differs from
+interval (:mod:`ldpcmarg.engine.stats`), frame errors (decoded word differs from
 the sent codeword), undetected errors (decoded word is a valid codeword but
 the wrong one), iterations and decoder seconds. A bit whose posterior LLR
 is exactly 0 (a tie, such as an erasure the decoder left unresolved on the
@@ -64,9 +64,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..errors import InputError
+from ..link.channels import make_channel
 from . import stats
-from .channels import make_channel
-from .errors import InputError
 from .store import COUNT_FIELDS, Store
 
 __all__ = [
@@ -178,7 +178,7 @@ def info_positions(code) -> np.ndarray:
     pos = getattr(enc, "info_positions", None) if enc is not None else None
     if pos is not None:
         return np.asarray(pos, dtype=np.int64)
-    from . import gf2
+    from ..code import gf2
 
     _, piv = gf2.row_reduce(code.H.toarray())
     mask = np.ones(code.n, dtype=bool)
@@ -193,7 +193,7 @@ def _all_zero_llr(channel, frames: int, n: int, rng: np.random.Generator) -> np.
     bit-identical to ``channel.sample_llr(zeros, rng)`` but without its
     temporaries; other channels go through ``sample_llr``.
     """
-    from .channels import AWGNChannel
+    from ..link.channels import AWGNChannel
 
     if type(channel) is AWGNChannel:
         llr = rng.standard_normal((frames, n))
@@ -297,8 +297,8 @@ _STATE: dict = {}
 def _worker_state(ctx: SweepContext):
     st = _STATE.get(ctx.key)
     if st is None:
-        from .code import ParityCheckCode
-        from .decoders.base import make_decoder
+        from ..code.parity_check import ParityCheckCode
+        from ..decoders.base import make_decoder
 
         code = ParityCheckCode(ctx.H, name=ctx.code_name, source=ctx.code_source)
         decs = [make_decoder(s, code) for s in ctx.decoders]
@@ -580,7 +580,7 @@ class _PointState:
 def _versions() -> dict:
     from importlib import metadata
 
-    from ._version import __version__
+    from .._version import __version__
 
     out = {"ldpcmarg": __version__}
     for pkg in ("numpy", "numba", "scipy"):
@@ -622,7 +622,7 @@ def simulate(code, decoders, snr, *, snr_kind: str = "ebn0_db", seed: int = 1,
         Local processes when ``executor`` is None (1 = in this process,
         None = all cores).
     executor : Executor, optional
-        An :mod:`ldpcmarg.executors` executor (e.g. a :class:`DaskExecutor`);
+        An :mod:`ldpcmarg.engine.executors` executor (e.g. a :class:`DaskExecutor`);
         it is started and closed here.
     store : Store, optional
         Results store opened with :meth:`Store.open_writer`; default: in memory.
@@ -651,7 +651,7 @@ def simulate(code, decoders, snr, *, snr_kind: str = "ebn0_db", seed: int = 1,
     Uncoded BPSK: a single all-zero check row gives rate 1, so Eb/N0 = Es/N0.
 
     >>> import numpy as np
-    >>> from ldpcmarg.code import ParityCheckCode
+    >>> from ldpcmarg.code.parity_check import ParityCheckCode
     >>> code = ParityCheckCode(np.zeros((1, 64), dtype=np.uint8), name="uncoded-64")
     >>> res = simulate(code, ["hard-decision"], [4.0], seed=1,
     ...                stop=StopRule(frame_errors=50, max_frames=10_000))
@@ -659,7 +659,7 @@ def simulate(code, decoders, snr, *, snr_kind: str = "ebn0_db", seed: int = 1,
     >>> p.frame_errors >= 50 and p.ber_ci[0] <= p.ber <= p.ber_ci[1]
     True
     """
-    from .decoders.base import make_decoder
+    from ..decoders.base import make_decoder
     from .executors import make_executor
 
     if snr_kind not in SNR_KINDS:

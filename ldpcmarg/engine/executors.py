@@ -31,7 +31,7 @@ import threading
 import time
 from typing import Any
 
-from .errors import InputError, LdpcmargError, MissingExtraError
+from ..errors import InputError, LdpcmargError, MissingExtraError
 
 __all__ = [
     "Executor",

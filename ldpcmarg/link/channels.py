@@ -18,8 +18,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ._settings import LLR_MAX
-from .errors import InputError
+from .._settings import LLR_MAX
+from ..errors import InputError
 
 __all__ = [
     "Channel",

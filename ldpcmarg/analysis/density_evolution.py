@@ -45,9 +45,9 @@ from typing import Any
 import numba as nb
 import numpy as np
 
-from ._settings import NUMBA_OPTS
-from .channels import sigma_to_ebn0
-from .errors import InputError
+from .._settings import NUMBA_OPTS
+from ..errors import InputError
+from ..link.channels import sigma_to_ebn0
 
 __all__ = [
     "DegreeDistribution",
@@ -1380,17 +1380,17 @@ def awgn_threshold_gaussian(dd, *, tol: float = 1e-5, max_iter: int = 20000,
 
 
 # ======================================================================
-# BI-AWGN Shannon limit (from ldpcmarg.capacity)
+# BI-AWGN Shannon limit (from ldpcmarg.analysis.capacity)
 # ======================================================================
 @lru_cache(maxsize=256)
 def biawgn_shannon_sigma(rate: float) -> float:
     """Noise std ``sigma`` at which the BI-AWGN capacity equals ``rate`` (0 < rate < 1).
 
-    From :func:`ldpcmarg.capacity.biawgn_shannon_limit_ebn0_db` (numerical
+    From :func:`ldpcmarg.analysis.capacity.biawgn_shannon_limit_ebn0_db` (numerical
     integration of the capacity); ``sigma**2 = 1 / (2 R 10**(EbN0/10))``.
     """
+    from ..link.channels import ebn0_to_sigma
     from .capacity import biawgn_shannon_limit_ebn0_db
-    from .channels import ebn0_to_sigma
 
     if not 0.0 < rate < 1.0:
         raise InputError(f"The rate must be in (0, 1) for a Shannon limit; got {rate!r}.")

@@ -33,7 +33,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.special import expit
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = [
     "mutual_information",

@@ -18,9 +18,9 @@ import numba as nb
 import numpy as np
 import scipy.sparse as sp
 
+from .._settings import DEFAULT_MAX_CHECK_DEGREE, NUMBA_OPTS
+from ..errors import InputError
 from . import gf2
-from ._settings import DEFAULT_MAX_CHECK_DEGREE, NUMBA_OPTS
-from .errors import InputError
 
 __all__ = [
     "ParityCheckCode",
@@ -353,7 +353,7 @@ class ParityCheckCode:
     Examples
     --------
     >>> import numpy as np
-    >>> from ldpcmarg.code import ParityCheckCode
+    >>> from ldpcmarg.code.parity_check import ParityCheckCode
     >>> H = [[1, 0, 1, 0, 1, 0, 1], [0, 1, 1, 0, 0, 1, 1], [0, 0, 0, 1, 1, 1, 1]]
     >>> code = ParityCheckCode(H, name="hamming-7-4")
     >>> code.n, code.m, code.k, code.girth_and_cycles()
@@ -602,14 +602,14 @@ class ParityCheckCode:
             ``k <= max_exact_k``.
         budget : int
             Otherwise, the number of random information sets tried by an
-            information-set search (:func:`ldpcmarg.gf2.information_set_search`);
+            information-set search (:func:`ldpcmarg.code.gf2.information_set_search`);
             the lightest codeword found is an upper bound. Each information
             set costs one Gauss-Jordan elimination of ``H`` (about
             ``n * m**2 / 128`` word operations) plus the search over it.
         seed : int
             Seed of the search (results are reproducible).
         method : {"stern", "lee-brickell"}
-            Search variant (see :func:`ldpcmarg.gf2.information_set_search`).
+            Search variant (see :func:`ldpcmarg.code.gf2.information_set_search`).
 
         Returns
         -------

@@ -1,0 +1,1 @@
+"""Analysis: capacity, density evolution, soft-output quality, decoder comparison, posteriors."""

@@ -1,0 +1,1 @@
+"""Monte Carlo engine: the sweep scheduler, results store, executors, statistics."""

@@ -1,0 +1,1 @@
+"""The link between encoder and decoder: channels and their bit LLRs."""

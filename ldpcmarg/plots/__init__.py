@@ -1,0 +1,1 @@
+"""matplotlib figures. Importing this package does not import matplotlib."""
