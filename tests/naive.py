@@ -49,6 +49,28 @@ def exact_posteriors(H: np.ndarray, llr: np.ndarray) -> np.ndarray:
     return p1[0] if np.ndim(llr) == 1 else p1
 
 
+def exact_posterior_llr(H: np.ndarray, llr: np.ndarray) -> np.ndarray:
+    """Exact posterior LLRs ``ln P(x_i=0|y) - ln P(x_i=1|y)`` by enumeration, in the log domain.
+
+    Same model as :func:`exact_posteriors`, but the sums over codewords are
+    taken with ``scipy.special.logsumexp``, so LLRs of any finite magnitude
+    give finite, exact results (no probabilities that round to 0 or 1).
+    """
+    from scipy.special import logsumexp
+
+    H = np.asarray(H, dtype=np.int64)
+    n = H.shape[1]
+    words = all_words(n)
+    cw = words[((words.astype(np.int64) @ H.T) % 2 == 0).all(axis=1)]
+    lam = np.atleast_2d(np.asarray(llr, dtype=np.float64))
+    logw = -(lam @ cw.T.astype(np.float64))             # (F, #codewords)
+    out = np.empty_like(lam)
+    for i in range(n):
+        one = cw[:, i] == 1
+        out[:, i] = logsumexp(logw[:, ~one], axis=1) - logsumexp(logw[:, one], axis=1)
+    return out[0] if np.ndim(llr) == 1 else out
+
+
 def random_tree_code(num_checks: int, rng: np.random.Generator, degrees=(2, 3, 4)) -> np.ndarray:
     """Parity-check matrix of a random cycle-free Tanner graph.
 

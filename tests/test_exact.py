@@ -169,3 +169,42 @@ def test_exact_decoder():
     assert np.array_equal(res.info["bitwise_map"], (ref.p1 > 0.5).astype(np.uint8))
     with pytest.raises(InputError):
         make_decoder("exact:method=trellis", ParityCheckCode(random_H(30, 60, 0.2, 3)))
+
+
+@pytest.mark.parametrize("name", ["hamming74", "golay24"])
+def test_exact_at_every_representable_scale_or_clear_refusal(name):
+    # Reproduction from a reliability report: LLRs of +-1.7e308 gave NaN for every
+    # posterior and ln Z. Below the documented bound (sum of |LLR| <= 1e300) the
+    # log-domain sums are finite and exact: LLRs scaled by 1e290 must give finite
+    # results whose ML word equals the unscaled ML word (the minimiser of a linear
+    # objective does not depend on a positive scale); above it, a clear InputError.
+    code, words = CASES[name]
+    rng = np.random.default_rng(9)
+    llr = rng.normal(1.0, 1.5, size=(5, code.n))
+    base = exact_posteriors(code, llr, "enumerate")
+    for method in ("enumerate", "trellis"):
+        big = exact_posteriors(code, llr * 1e290, method)
+        assert np.all(np.isfinite(big.posterior_llr)) and np.all(np.isfinite(big.log_partition))
+        np.testing.assert_array_equal(big.ml_bits, base.ml_bits)
+        # ln Z -> -min_x sum lambda_i x_i at low temperature (Laplace's method)
+        lnz, _, _ = direct(words, llr * 1e290)
+        np.testing.assert_allclose(big.log_partition, lnz, rtol=1e-12)
+        with pytest.raises(InputError, match="too large for exact posteriors"):
+            exact_posteriors(code, np.full((1, code.n), -1.7e308), method)
+
+
+def test_posteriors_cli_refuses_overflowing_llrs(tmp_path):
+    # Seen in the CLI: `posteriors -d exact` printed NaN posteriors and exited 0.
+    import subprocess
+    import sys
+
+    llr_file = tmp_path / "huge.npy"
+    np.save(llr_file, np.full((3, 24), 1.7e308))
+    out = tmp_path / "post.npz"
+    res = subprocess.run([sys.executable, "-m", "ldpcmarg", "posteriors", "golay-24-12",
+                          str(llr_file), "-d", "exact", "-o", str(out)],
+                         capture_output=True, text=True, timeout=120)
+    assert res.returncode == 2, res.stderr
+    assert "Traceback" not in res.stderr
+    assert "too large for exact posteriors" in res.stderr
+    assert not out.exists()

@@ -284,3 +284,20 @@ def test_options_and_errors():
     lam = awgn_llr(code, 1.0, 0)
     assert np.allclose(clone.decode(lam).posterior_llr, dec.decode(lam).posterior_llr)
     assert "log_partition_bound" not in lm.make_decoder("fw", code, max_iter=2).decode(lam).info
+
+
+def test_refuses_llrs_beyond_saturation_and_survives_at_it():
+    # Reproduction from a reliability report: |LLR| >= 1e21 (past HiGHS's infinite
+    # cost, 1e20) gave near-uniform posteriors and a wrong word marked valid.
+    # Above the lab's saturation level LLR_MAX fw now refuses with one clear error;
+    # at the saturation level with uneven magnitudes (scaled AWGN, clipped) the warm
+    # start used to crash in an SVD: the outputs must be finite.
+    code = random_regular_code(24, 3, 6, 0)
+    ch = lm.make_channel("awgn", ebn0_db=2.0, rate=code.rate)
+    llr = ch.sample_llr(np.zeros((2, code.n), np.uint8), np.random.default_rng(3))
+    dec = lm.make_decoder("fw", code, max_iter=30)
+    with pytest.raises(InputError, match="fw accepts LLR magnitudes up to"):
+        dec.decode(llr * 1e21)
+    res = dec.decode(np.clip(llr * 1e4, -LLR_MAX, LLR_MAX))
+    assert np.all(np.isfinite(res.posterior_llr))
+    assert np.array_equal(res.valid, np.asarray(code.is_codeword(res.bits)).reshape(-1))

@@ -20,6 +20,7 @@ from conftest import HAMMING_7_4
 from naive import regular_H_by_redraw
 from scipy.optimize import linprog
 
+import ldpcmarg as lm
 from ldpcmarg.code.parity_check import ParityCheckCode
 from ldpcmarg.decoders.base import make_decoder
 from ldpcmarg.decoders.lp import LocalPolytopeLP
@@ -393,3 +394,23 @@ def test_hot_start_gives_up_and_solves_cold():
     assert "hot+cold-ipm" in seen
     with pytest.raises(InputError, match="hot_iteration_limit"):
         LocalPolytopeLP(code, hot_iteration_limit=0)
+
+
+@pytest.mark.parametrize("name", ["lp", "ml"])
+def test_lp_and_ml_decisions_at_every_llr_scale(name):
+    # HiGHS treats costs >= 1e20 as infinite (its `infinite_cost` option, HiGHS
+    # documentation), so unscaled LLRs of 1e21 decoded wrongly. LP and ML decoding
+    # minimise a linear objective, whose minimiser does not change under a positive
+    # scale: the decisions must be identical at every finite scale.
+    code = lm.load_code("golay-24-12")
+    ch = lm.make_channel("awgn", ebn0_db=1.0, rate=code.rate)
+    llr = ch.sample_llr(np.zeros((12, code.n), np.uint8), np.random.default_rng(4))
+    dec = lm.make_decoder(name, code)
+    ref = dec.decode(llr)
+    for s in (1e5, 1e21, 1e300):
+        res = dec.decode(llr * s)
+        np.testing.assert_array_equal(res.bits, ref.bits)
+        if name == "lp":
+            np.testing.assert_array_equal(res.info["ml_certificate"], ref.info["ml_certificate"])
+            np.testing.assert_allclose(res.info["lp_objective"], ref.info["lp_objective"] * s,
+                                       rtol=1e-9)

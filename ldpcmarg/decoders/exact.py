@@ -297,6 +297,28 @@ def choose_method(code, method: str = "auto") -> str:
     return "trellis"
 
 
+#: Largest per-frame sum of |LLR| the exact sums accept. Every quantity the
+#: kernels form (distances ``D(x)``, their differences, ``ln Z``) is bounded by
+#: this sum, so below it all arithmetic is finite and exact to rounding;
+#: above it ``D(x)`` would overflow to inf and ``inf - inf`` give NaN.
+EXACT_MAX_ABS_LLR_SUM = 1.0e300
+
+
+def _check_exact_range(llr2: np.ndarray) -> None:
+    """Refuse frames whose LLR magnitudes would overflow the exact log-domain sums."""
+    with np.errstate(over="ignore"):
+        tot = np.abs(llr2).sum(axis=1)
+    bad = ~(tot <= EXACT_MAX_ABS_LLR_SUM)
+    if bad.any():
+        f = int(np.flatnonzero(bad)[0])
+        raise InputError(
+            f"LLR magnitudes of frame {f} are too large for exact posteriors: the sum of "
+            f"|LLR| over the frame is {float(tot[f]):.3g}, above {EXACT_MAX_ABS_LLR_SUM:.0e}, "
+            "where the log-domain sums would overflow. Clip the LLRs first (e.g. to +-1e4, "
+            "which already means certainty in float64)."
+        )
+
+
 def exact_posteriors(code, llr, method: str = "auto") -> ExactResult:
     """Exact bitwise posteriors, ``ln Z`` and block-ML codewords.
 
@@ -316,8 +338,9 @@ def exact_posteriors(code, llr, method: str = "auto") -> ExactResult:
     Raises
     ------
     InputError
-        Bad LLRs, or a code too large for the chosen method (message gives
-        n, k and rank).
+        Bad LLRs (NaN, infinite, or a frame whose sum of ``|LLR|`` exceeds
+        :data:`EXACT_MAX_ABS_LLR_SUM`), or a code too large for the chosen
+        method (message gives n, k and rank).
 
     Examples
     --------
@@ -331,6 +354,7 @@ def exact_posteriors(code, llr, method: str = "auto") -> ExactResult:
     [[0, 0, 0]]
     """
     llr2, _ = check_llr(llr, code.n)
+    _check_exact_range(llr2)
     method = choose_method(code, method)
     F, n = llr2.shape
     absl = np.ascontiguousarray(np.abs(llr2))

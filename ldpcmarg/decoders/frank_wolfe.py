@@ -82,7 +82,7 @@ import numba as nb
 import numpy as np
 
 from .._params import Param
-from .._settings import DEFAULT_MAX_CHECK_DEGREE, NUMBA_OPTS
+from .._settings import DEFAULT_MAX_CHECK_DEGREE, LLR_MAX, NUMBA_OPTS
 from ..errors import InputError
 from .base import Decoder, DecodeResult
 
@@ -339,6 +339,8 @@ def _fit_check_group(B, pats, Q, steps: int = 3):
         if not np.any(np.abs(delta) > 1e-16):
             break
         C = np.einsum("ks,si,sj->kij", B, P, P) - m[:, :, None] * m[:, None, :]
+        if not (np.all(np.isfinite(C)) and np.all(np.isfinite(delta))):
+            break                   # degenerate beliefs: the caller checks the result
         c = np.einsum("kij,kj->ki", np.linalg.pinv(C, rcond=1e-10), delta)
         B = B + B * ((P[None, :, :] - m[:, None, :]) @ c[:, :, None])[:, :, 0]
     return B
@@ -1121,7 +1123,12 @@ class FrankWolfeDecoder(Decoder):
 
             self._mp = ReweightedSumProductDecoder(self.code, rho=self.rho, damping=0.5)
         tb, tl = self._mp.beliefs(lam, max_iter=self.options["warm_iter"], tol=1e-12)
-        tb, tl, _ = consistent_interior_point(self.code, self._prob.lc, tb, tl)
+        try:
+            tb, tl, _ = consistent_interior_point(self.code, self._prob.lc, tb, tl)
+        except np.linalg.LinAlgError:
+            return None
+        if not (np.all(np.isfinite(tb)) and np.all(np.isfinite(tl))):
+            return None             # beliefs too close to 0/1 to repair: uniform start
         return tb, tl
 
     def solve_one(self, llr_row) -> FWFrameResult:
@@ -1145,6 +1152,14 @@ class FrankWolfeDecoder(Decoder):
 
     def _decode(self, llr: np.ndarray) -> DecodeResult:
         F, n = llr.shape
+        big = np.abs(llr) > LLR_MAX
+        if big.any():
+            f, i = (int(v) for v in np.argwhere(big)[0])
+            raise InputError(
+                f"fw accepts LLR magnitudes up to {LLR_MAX:g} (the lab's saturation level, "
+                f"already certainty in float64); frame {f}, bit {i} has {llr[f, i]:.3g}. "
+                f"Clip the LLRs to +-{LLR_MAX:g} first, or use lp, exact or sum-product, "
+                "which take any finite magnitude.")
         post = np.empty((F, n))
         iters = np.zeros(F, dtype=np.int64)
         info = {k: np.zeros(F) for k in ("duality_gap", "relative_gap", "free_energy",

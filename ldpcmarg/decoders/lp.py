@@ -661,6 +661,22 @@ class ParityMIP:
 
 
 # ---------------------------------------------------------------- decoders
+#: HiGHS treats costs of magnitude >= 1e20 as infinite (its ``infinite_cost``
+#: option), and large costs also swamp its absolute tolerances. The LP and ML
+#: decoders therefore rescale a frame whose largest |LLR| exceeds this by a
+#: power of two: exact in binary floating point, and the minimiser of a linear
+#: objective does not change, so decisions are exact at every finite magnitude.
+COST_SCALE_MAX = 2.0**13
+
+
+def cost_scale(llr_row: np.ndarray) -> float:
+    """Power-of-two factor that brings ``max |llr_row|`` to at most :data:`COST_SCALE_MAX`."""
+    top = float(np.max(np.abs(llr_row))) if llr_row.size else 0.0
+    if top <= COST_SCALE_MAX:
+        return 1.0
+    return 2.0 ** -math.ceil(math.log2(top / COST_SCALE_MAX))
+
+
 _TIME_LIMIT = Param("float", None, low=0.0, low_open=True,
                     doc="Seconds allowed per frame (none: no limit).")
 _MAX_DEG = Param("int", DEFAULT_MAX_CHECK_DEGREE, low=1, high=24,
@@ -741,7 +757,8 @@ class LPDecoder(_LPBackedDecoder):
         proved = np.zeros(F, dtype=bool)
         iters = np.zeros(F, dtype=np.int64)
         for f in range(F):
-            sol = lp.solve(llr[f], warm=False, time_limit=self.options["time_limit"])
+            scale = cost_scale(llr[f])
+            sol = lp.solve(llr[f] * scale, warm=False, time_limit=self.options["time_limit"])
             iters[f] = sol.simplex_iterations
             if not sol.optimal:
                 if sol.status != "time_limit":
@@ -754,7 +771,7 @@ class LPDecoder(_LPBackedDecoder):
             proved[f] = True
             t = np.clip(sol.bits, 0.0, 1.0)
             tau[f] = t
-            obj[f] = sol.objective
+            obj[f] = sol.objective / scale
             dist = np.minimum(t, 1.0 - t)
             frac = dist > INTEGRALITY_TOL
             nfrac[f] = int(frac.sum())
@@ -813,7 +830,7 @@ class MLDecoder(_LPBackedDecoder):
         obj = np.full(F, np.nan)
         proved = np.zeros(F, dtype=bool)
         for f in range(F):
-            sol = lp.solve(llr[f], time_limit=self.options["time_limit"])
+            sol = lp.solve(llr[f] * cost_scale(llr[f]), time_limit=self.options["time_limit"])
             if sol.has_solution:
                 bits[f] = np.rint(np.clip(sol.bits, 0.0, 1.0)).astype(np.uint8)
                 obj[f] = float(llr[f] @ bits[f])

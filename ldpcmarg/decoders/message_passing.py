@@ -21,18 +21,21 @@ Conventions
 
 Box-plus
 --------
-Sum-product computes ``t = tanh(|v|/2)`` of every input as
-``(1 - exp(-|v|)) / (1 + exp(-|v|))``, forms the extrinsic products with
-prefix/suffix products (no division, so zero inputs from erasures are exact),
-and maps back with ``2 atanh(p) = log((1 + p) / (1 - p))`` after clipping
-``p`` to ``1 - 2**-53``. ``exp``/``log`` are 1.7x faster than
-``tanh``/``atanh`` or ``expm1``/``log1p`` here; their rounding costs at most
-~1e-16 absolute in any message LLR, which is what posteriors care about. A saturated
-check therefore sends at most ``ln(2**54 - 1) ~ 37.4`` (float64 messages) --
-an error probability of ~6e-17 -- and never ``atanh(1) = inf``, whatever the
-input magnitude (BEC LLRs of ``+-1e4`` included). All operations act on
-magnitudes and signs separately, so decoding is exactly symmetric under
-codeword translation (sign flips).
+Sum-product check messages are exact to rounding at every LLR magnitude
+(:func:`_sp_magnitudes`). With ``r = 1 - tanh(|v|/2) = 2e^{-|v|}/(1+e^{-|v|})``
+the complement ``q = 1 - prod tanh(|v_j|/2)`` of the extrinsic product is
+accumulated as ``q <- q + r - q r`` (positive terms only, so no cancellation
+however reliable the inputs), and the message magnitude is
+``log((2 - q)/q)``: one ``exp`` and one ``log`` per edge, as the plain
+``tanh``/``atanh`` form costs, but without its saturation (that form cannot
+send more than ``ln(2**54 - 1) ~ 37.4``, so LLRs on a larger scale stopped
+being corrected). A check with a cavity magnitude above ``_BIG64 = 600``
+(``e^{-|v|}`` leaving the normal range) is computed with the pairwise form
+``min(x, y) - log1p(e^{-|x-y|}) + log1p(e^{-(x+y)})``, exact at every
+magnitude. Channel LLRs are clipped to ``+-LLR_MAX``; messages of degree-1
+checks (an empty extrinsic product, i.e. certainty) are capped there too.
+All operations act on magnitudes and signs separately, so decoding is exactly
+symmetric under codeword translation (sign flips).
 
 Performance notes
 -----------------
@@ -74,10 +77,11 @@ __all__ = [
 _MODE_SP = 0
 _MODE_MS = 1
 
-#: Largest float64 below 1: the clip applied to tanh products before atanh.
-_P_MAX64 = float(np.nextafter(1.0, 0.0))
-#: Same for float32 messages.
-_P_MAX32 = float(np.nextafter(np.float32(1.0), np.float32(0.0)))
+#: Cavity magnitude above which a sum-product check switches from the
+#: ``1 - tanh`` form to the pairwise box-plus (:func:`_sp_magnitudes`):
+#: ``e^{-600}`` is still a normal float64, ``e^{-40}`` a normal float32.
+_BIG64 = 600.0
+_BIG32 = 40.0
 
 
 # --------------------------------------------------------------------- kernels
@@ -131,7 +135,74 @@ def _first_open(L, check_ptr, edge_var, start):
 
 
 @nb.njit(**NUMBA_OPTS)
-def _check_messages(L, c2v, edge_var, a, d, mode, alpha, beta, pmax, cap, vbuf, tbuf):
+def _boxplus_mag(x, y):
+    """Magnitude of the box-plus of two LLRs of magnitudes ``x, y >= 0`` (inf allowed).
+
+    ``|a [+] b| = min(x, y) - log1p(exp(-|x - y|)) + log1p(exp(-(x + y)))``: every
+    term is bounded, so it is exact to rounding at every magnitude and never
+    overflows; ``inf`` is the identity (``x [+] inf = x``).
+    """
+    lo = min(x, y)
+    if lo == np.inf:
+        return np.inf
+    r = lo - math.log1p(math.exp(-abs(x - y))) + math.log1p(math.exp(-(x + y)))
+    return max(r, 0.0)
+
+
+@nb.njit(**NUMBA_OPTS)
+def _sp_magnitudes(vbuf, d, big, cap, tbuf):
+    """Extrinsic sum-product message magnitudes of one check.
+
+    Reads the cavity LLRs ``vbuf[:d]``, writes ``|msg_k|`` for ``k < d`` to
+    ``tbuf[:d]`` (capped at ``cap``); ``vbuf[d:2d]`` and ``tbuf[d]`` are scratch.
+
+    With ``r_j = 1 - tanh(|v_j|/2) = 2 e^{-|v_j|} / (1 + e^{-|v_j|})`` and
+    ``q_k = 1 - prod_{j != k} tanh(|v_j|/2)`` (built from prefix and suffix
+    values with ``q <- q + r - q r``, a sum of positive terms, so ``q`` keeps
+    its full relative precision however small it is), the message is
+    ``2 atanh(1 - q_k) = log((2 - q_k) / q_k)``: exact to a few ulps in
+    absolute terms, at any magnitude up to ``big``. If some ``|v_j| > big``
+    (where ``e^{-|v|}`` would leave the normal range), the check is computed
+    instead with the pairwise form of :func:`_boxplus_mag` (prefix/suffix),
+    which is exact at every magnitude but costs four transcendental calls per
+    pair.
+    """
+    xmax = 0.0
+    for k in range(d):
+        xmax = max(xmax, abs(vbuf[k]))
+    if xmax <= big:
+        q = 0.0
+        for k in range(d):
+            u = math.exp(-abs(vbuf[k]))
+            r = 2.0 * u / (1.0 + u)
+            tbuf[k] = q                 # q of the prefix j < k
+            vbuf[d + k] = r
+            q = q + r - q * r
+        q = 0.0
+        for kk in range(d):
+            k = d - 1 - kk
+            qf = tbuf[k]
+            qk = qf + q - qf * q        # prefix and suffix combined
+            r = vbuf[d + k]
+            q = q + r - q * r
+            if qk <= 0.0:               # empty product (degree-1 check): certain
+                tbuf[k] = cap
+            else:
+                tbuf[k] = min(math.log((2.0 - qk) / qk), cap)
+    else:
+        acc = np.inf
+        for k in range(d):
+            tbuf[k] = acc
+            acc = _boxplus_mag(acc, abs(vbuf[k]))
+        acc = np.inf
+        for kk in range(d):
+            k = d - 1 - kk
+            tbuf[k] = min(_boxplus_mag(tbuf[k], acc), cap)
+            acc = _boxplus_mag(acc, abs(vbuf[k]))
+
+
+@nb.njit(**NUMBA_OPTS)
+def _check_messages(L, c2v, edge_var, a, d, mode, alpha, beta, big, cap, vbuf, tbuf):
     """Extrinsic check messages of one check (edges ``a .. a+d-1``).
 
     Reads the cavity LLRs ``v_k = L[edge_var[a+k]] - c2v[a+k]`` into ``vbuf[:d]``
@@ -140,32 +211,18 @@ def _check_messages(L, c2v, edge_var, a, d, mode, alpha, beta, pmax, cap, vbuf, 
     ``tbuf[k] * s * copysign(1, v_k)``. Signs are handled arithmetically, not
     with branches: random signs would defeat branch prediction.
 
-    Sum-product: ``t_k = tanh(|v_k|/2) = (1 - exp(-|v_k|)) / (1 + exp(-|v_k|))``,
-    prefix/suffix products ``p_k = prod_{j != k} t_j`` (no division, exact with
-    zeros), ``|msg_k| = 2 atanh(min(p_k, pmax)) = log((1 + p_k) / (1 - p_k))``.
+    Sum-product: ``|msg_k| = |[+]_{j != k} v_j|`` by :func:`_sp_magnitudes`
+    (exact at every magnitude; capped at ``cap`` only for degree-1 checks).
     Min-sum: ``|msg_k| = min(max(alpha * min_{j != k} |v_j| - beta, 0), cap)``.
     """
     sprod = 1.0
     if mode == _MODE_SP:
-        acc = 1.0
         for k in range(d):
             e = a + k
             v = L[edge_var[e]] - c2v[e]
             vbuf[k] = v
             sprod *= math.copysign(1.0, v)
-            ex = math.exp(-abs(v))
-            t = (1.0 - ex) / (1.0 + ex)
-            tbuf[k] = acc
-            acc *= t
-            vbuf[d + k] = t
-        acc = 1.0
-        for kk in range(d):
-            k = d - 1 - kk
-            p = tbuf[k] * acc
-            acc *= vbuf[d + k]
-            if p > pmax:
-                p = pmax
-            tbuf[k] = math.log((1.0 + p) / (1.0 - p))
+        _sp_magnitudes(vbuf, d, big, cap, tbuf)
     else:
         min1 = np.inf
         min2 = np.inf
@@ -246,7 +303,7 @@ def _flood_ms_plain(llr, check_ptr, edge_var, alpha, beta, max_iter, early_stop,
 
 
 @nb.njit(**NUMBA_OPTS)
-def _flood_sp_plain(llr, check_ptr, edge_var, pmax, max_iter, early_stop, c2v, L, Lnew, vbuf,
+def _flood_sp_plain(llr, check_ptr, edge_var, big, max_iter, early_stop, c2v, L, Lnew, vbuf,
                     tbuf):
     """Sum-product flooding without damping, weights or tolerance: the common fast path.
 
@@ -256,6 +313,7 @@ def _flood_sp_plain(llr, check_ptr, edge_var, pmax, max_iter, early_stop, c2v, L
     """
     n = llr.shape[0]
     m = check_ptr.shape[0] - 1
+    cap = LLR_MAX
     for i in range(n):
         L[i] = llr[i]
     for e in range(c2v.shape[0]):
@@ -276,26 +334,15 @@ def _flood_sp_plain(llr, check_ptr, edge_var, pmax, max_iter, early_stop, c2v, L
             a = check_ptr[c]
             d = check_ptr[c + 1] - a
             sprod = 1.0
-            acc = 1.0
             for k in range(d):
                 e = a + k
                 v = L[edge_var[e]] - c2v[e]
                 vbuf[k] = v
                 sprod *= math.copysign(1.0, v)
-                ex = math.exp(-abs(v))
-                t = (1.0 - ex) / (1.0 + ex)
-                tbuf[k] = acc
-                acc *= t
-                vbuf[d + k] = t
-            acc = 1.0
-            for kk in range(d):
-                k = d - 1 - kk
-                p = tbuf[k] * acc
-                acc *= vbuf[d + k]
-                if p > pmax:
-                    p = pmax
+            _sp_magnitudes(vbuf, d, big, cap, tbuf)
+            for k in range(d):
                 e = a + k
-                out = math.log((1.0 + p) / (1.0 - p)) * sprod * math.copysign(1.0, vbuf[k])
+                out = tbuf[k] * sprod * math.copysign(1.0, vbuf[k])
                 c2v[e] = out
                 Lnew[edge_var[e]] += out
         for i in range(n):
@@ -307,7 +354,7 @@ def _flood_sp_plain(llr, check_ptr, edge_var, pmax, max_iter, early_stop, c2v, L
 
 @nb.njit(**NUMBA_OPTS)
 def _flood_frame(llr, check_ptr, edge_var, rho, weighted, mode, alpha, beta, damping,
-                 max_iter, early_stop, tol, pmax, c2v, L, Lnew, vbuf, tbuf):
+                 max_iter, early_stop, tol, big, c2v, L, Lnew, vbuf, tbuf):
     """Flooding schedule on one frame.
 
     Parameters (prior validation assumed)
@@ -351,7 +398,7 @@ def _flood_frame(llr, check_ptr, edge_var, rho, weighted, mode, alpha, beta, dam
         for c in range(m):
             a = check_ptr[c]
             d = check_ptr[c + 1] - a
-            sprod = _check_messages(L, c2v, edge_var, a, d, mode, alpha, beta, pmax, cap,
+            sprod = _check_messages(L, c2v, edge_var, a, d, mode, alpha, beta, big, cap,
                                   vbuf, tbuf)
             w = rho[c] if weighted else 1.0
             for k in range(d):
@@ -386,7 +433,7 @@ def _flood_frame(llr, check_ptr, edge_var, rho, weighted, mode, alpha, beta, dam
 
 @nb.njit(**NUMBA_OPTS)
 def _layered_frame(llr, check_ptr, edge_var, mode, alpha, beta, damping, max_iter,
-                   early_stop, pmax, c2v, L, vbuf, tbuf):
+                   early_stop, big, c2v, L, vbuf, tbuf):
     """Layered (row-serial) schedule on one frame: checks updated one after another.
 
     After check ``c`` is updated, the posteriors of its bits are refreshed
@@ -415,7 +462,7 @@ def _layered_frame(llr, check_ptr, edge_var, mode, alpha, beta, damping, max_ite
         for c in range(m):
             a = check_ptr[c]
             d = check_ptr[c + 1] - a
-            sprod = _check_messages(L, c2v, edge_var, a, d, mode, alpha, beta, pmax, cap,
+            sprod = _check_messages(L, c2v, edge_var, a, d, mode, alpha, beta, big, cap,
                                   vbuf, tbuf)
             for k in range(d):
                 e = a + k
@@ -432,7 +479,7 @@ def _layered_frame(llr, check_ptr, edge_var, mode, alpha, beta, damping, max_ite
 
 @nb.njit(parallel=True, **NUMBA_OPTS)
 def _flood_batch(llr, check_ptr, edge_var, rho, weighted, mode, alpha, beta, damping,
-                 max_iter, early_stop, tol, pmax, dmax, nchunks, post, iters, valid, stopped):
+                 max_iter, early_stop, tol, big, dmax, nchunks, post, iters, valid, stopped):
     """Flooding over a batch: llr (F, n) -> post (F, n); iters, valid, stopped (F,).
 
     Frames are dealt to ``nchunks`` chunks (frame f to chunk f mod nchunks); a
@@ -451,11 +498,11 @@ def _flood_batch(llr, check_ptr, edge_var, rho, weighted, mode, alpha, beta, dam
                 it, ok, st = _flood_ms_plain(llr[f], check_ptr, edge_var, alpha, beta, max_iter,
                                              early_stop, c2v, post[f], Lnew, vbuf)
             elif plain:
-                it, ok, st = _flood_sp_plain(llr[f], check_ptr, edge_var, pmax, max_iter,
+                it, ok, st = _flood_sp_plain(llr[f], check_ptr, edge_var, big, max_iter,
                                              early_stop, c2v, post[f], Lnew, vbuf, tbuf)
             else:
                 it, ok, st = _flood_frame(llr[f], check_ptr, edge_var, rho, weighted, mode,
-                                          alpha, beta, damping, max_iter, early_stop, tol, pmax,
+                                          alpha, beta, damping, max_iter, early_stop, tol, big,
                                           c2v, post[f], Lnew, vbuf, tbuf)
             iters[f] = it
             valid[f] = ok
@@ -464,7 +511,7 @@ def _flood_batch(llr, check_ptr, edge_var, rho, weighted, mode, alpha, beta, dam
 
 @nb.njit(parallel=True, **NUMBA_OPTS)
 def _layered_batch(llr, check_ptr, edge_var, mode, alpha, beta, damping, max_iter,
-                   early_stop, pmax, dmax, nchunks, post, iters, valid):
+                   early_stop, big, dmax, nchunks, post, iters, valid):
     """Layered schedule over a batch (see :func:`_layered_frame`, :func:`_flood_batch`)."""
     F, n = llr.shape
     E = edge_var.shape[0]
@@ -474,7 +521,7 @@ def _layered_batch(llr, check_ptr, edge_var, mode, alpha, beta, damping, max_ite
         tbuf = np.empty(dmax + 1, dtype=post.dtype)
         for f in range(ch, F, nchunks):
             it, ok, _ = _layered_frame(llr[f], check_ptr, edge_var, mode, alpha, beta, damping,
-                                       max_iter, early_stop, pmax, c2v, post[f], vbuf, tbuf)
+                                       max_iter, early_stop, big, c2v, post[f], vbuf, tbuf)
             iters[f] = it
             valid[f] = ok
 
@@ -637,18 +684,18 @@ class _MessagePassing(Decoder):
         valid = np.zeros(F, dtype=np.bool_)
         stopped = np.zeros(F, dtype=np.bool_)
         alpha, beta = self._alpha_beta()
-        pmax = _P_MAX32 if dtype == np.float32 else _P_MAX64
+        big = _BIG32 if dtype == np.float32 else _BIG64
         nchunks = self._nchunks(F)
         with _Threads(self.options["threads"]):
             if self._layered:
                 _layered_batch(x, self._check_ptr, self._edge_var, self._mode, float(alpha),
                                float(beta), float(self.options["damping"]), int(max_iter),
-                               bool(early_stop), pmax, self._dmax, nchunks, post, iters, valid)
+                               bool(early_stop), big, self._dmax, nchunks, post, iters, valid)
             else:
                 _flood_batch(x, self._check_ptr, self._edge_var, self._rho, self._weighted,
                              self._mode, float(alpha), float(beta),
                              float(self.options["damping"]), int(max_iter), bool(early_stop),
-                             float(tol), pmax, self._dmax, nchunks, post, iters, valid, stopped)
+                             float(tol), big, self._dmax, nchunks, post, iters, valid, stopped)
         return post.astype(np.float64, copy=False), iters, valid, stopped
 
     def _decode(self, llr: np.ndarray) -> DecodeResult:
@@ -884,7 +931,7 @@ class ReweightedSumProductDecoder(_MessagePassing):
             int(self.options["max_iter"] if max_iter is None else max_iter),
             bool(self.options["early_stop"] if early_stop is None else early_stop),
             float(self._tol() if tol is None else tol),
-            _P_MAX32 if dtype == np.float32 else _P_MAX64, c2v, L, Lnew, vbuf, tbuf)
+            _BIG32 if dtype == np.float32 else _BIG64, c2v, L, Lnew, vbuf, tbuf)
         Lf = L.astype(np.float64)
         tau_local = np.empty(lc.count, dtype=np.float64)
         _local_beliefs_kernel(Lf, c2v.astype(np.float64), c.check_ptr, c.edge_var, lc.offset,
