@@ -8,12 +8,16 @@ import math
 import numpy as np
 import pytest
 import scipy.sparse as sp
+from cli_helpers import run_cli
 from scipy.special import ndtr
 
-from cli_helpers import run_cli
 from ldpcmarg import load_code, simulate
-from ldpcmarg.analysis.error_structures import (find_low_weight_codewords, induced_ab,
-                                                search_structures, structure_family)
+from ldpcmarg.analysis.error_structures import (
+    find_low_weight_codewords,
+    induced_ab,
+    search_structures,
+    structure_family,
+)
 from ldpcmarg.analysis.pseudocodewords import awgn_pseudo_weight, instanton_search
 from ldpcmarg.code.construct import golay24, repetition
 from ldpcmarg.code.parity_check import ParityCheckCode

@@ -1,4 +1,4 @@
-"""``ldpcmarg floor``: error structures and an importance-sampling FER estimate below the MC range."""
+"""``ldpcmarg floor``: error structures and an importance-sampling FER estimate (error floors)."""
 
 from __future__ import annotations
 
@@ -88,8 +88,11 @@ def command(code_arg, decoders, ebn0, seed, json_path, search_ebn0, candidates, 
     marked untrustworthy and get the interval [0, upper bound].
     """
     from .. import load_code
-    from ..analysis.error_structures import find_low_weight_codewords, search_structures
-    from ..analysis.error_structures import structure_family
+    from ..analysis.error_structures import (
+        find_low_weight_codewords,
+        search_structures,
+        structure_family,
+    )
     from ..decoders.base import make_decoder
     from ..engine.executors import make_executor
     from ..engine.importance_sampling import Bias, FloorStop, estimate_floor
