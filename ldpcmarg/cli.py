@@ -29,6 +29,9 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "posteriors": ("posteriors", "Per-bit posteriors (soft outputs) for given channel outputs."),
     "compare": ("compare", "Compare decoders on the same frames: errors, soft-output quality."),
     "envinfo": ("envinfo", "Versions and machine facts for bug reports."),
+    "floor": ("floor", "Error structures and an importance-sampling FER estimate (error floor)."),
+    "pseudocodewords": ("pseudocodewords", "Low pseudo-weight LP pseudo-codewords (instanton "
+                        "search)."),
 }
 
 

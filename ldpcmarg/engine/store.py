@@ -13,6 +13,14 @@ Layout
              fixed by its seed, so they can be reused by any later sweep.
 ``results``  the counts a sweep *counted* for each (point, decoder) under its
              stopping rule (a prefix of the chunks), for listing and plotting.
+``payload_chunks``  completed chunks of estimators whose counts are not the
+             plain ``COUNT_FIELDS`` (importance sampling: weighted sums), as
+             JSON; rows are never updated either.
+``payloads`` cached JSON documents by (kind, key), e.g. a structure search.
+
+The last two tables were added without changing the schema version: they are
+created when a store is opened for writing, and readers treat a store
+without them as holding none.
 
 Concurrency
 -----------
@@ -96,6 +104,27 @@ CREATE TABLE results (
 """
 
 
+# Added later, created with IF NOT EXISTS so that older stores gain them on open.
+_SCHEMA_EXTRA = """
+CREATE TABLE IF NOT EXISTS payload_chunks (
+    point_id INTEGER NOT NULL REFERENCES points(id),
+    decoder TEXT NOT NULL,
+    chunk_index INTEGER NOT NULL,
+    frames INTEGER NOT NULL,
+    payload TEXT NOT NULL,
+    created TEXT NOT NULL,
+    PRIMARY KEY (point_id, decoder, chunk_index, frames)
+);
+CREATE TABLE IF NOT EXISTS payloads (
+    kind TEXT NOT NULL,
+    key TEXT NOT NULL,
+    payload TEXT NOT NULL,
+    created TEXT NOT NULL,
+    PRIMARY KEY (kind, key)
+);
+"""
+
+
 def _now() -> str:
     return _dt.datetime.now(_dt.UTC).isoformat(timespec="seconds")
 
@@ -164,6 +193,7 @@ class Store:
             if st._has_schema():
                 st._check_code(code)
                 conn.execute("PRAGMA journal_mode=WAL")
+                st._create_extra()
             else:
                 conn.execute("PRAGMA journal_mode=WAL")
                 st._create(code)
@@ -224,7 +254,7 @@ class Store:
         c = self._conn
         c.execute("BEGIN IMMEDIATE")
         try:
-            for stmt in _SCHEMA.split(";"):
+            for stmt in (_SCHEMA + _SCHEMA_EXTRA).split(";"):
                 if stmt.strip():
                     c.execute(stmt)
             meta = {
@@ -242,6 +272,14 @@ class Store:
         except BaseException:
             c.execute("ROLLBACK")
             raise
+
+    def _create_extra(self) -> None:
+        def work(c):
+            for stmt in _SCHEMA_EXTRA.split(";"):
+                if stmt.strip():
+                    c.execute(stmt)
+
+        self._tx(work)
 
     def meta(self) -> dict:
         """Store-level facts (code fingerprint, name, source, n, m, k)."""
@@ -351,7 +389,48 @@ class Store:
 
         self._tx(work)
 
+    def add_payload_chunk(self, point_id: int, decoder: str, chunk_index: int, frames: int,
+                          payload: dict) -> None:
+        """Record one completed chunk whose results are a JSON document (one transaction)."""
+        text = json.dumps(payload, sort_keys=True)
+
+        def work(c):
+            c.execute("INSERT OR IGNORE INTO payload_chunks (point_id, decoder, chunk_index, "
+                      "frames, payload, created) VALUES (?, ?, ?, ?, ?, ?)",
+                      (point_id, decoder, int(chunk_index), int(frames), text, _now()))
+
+        self._tx(work)
+
+    def put_payload(self, kind: str, key: str, payload) -> None:
+        """Cache a JSON document under (kind, key); an existing one is kept."""
+        text = json.dumps(payload, sort_keys=True)
+
+        def work(c):
+            c.execute("INSERT OR IGNORE INTO payloads (kind, key, payload, created) "
+                      "VALUES (?, ?, ?, ?)", (kind, key, text, _now()))
+
+        self._tx(work)
+
     # ------------------------------------------------------------ reading
+    def payload_chunks(self, point_id: int) -> list[tuple]:
+        """Stored JSON chunks of a point: ``(decoder, chunk_index, frames, payload)`` tuples."""
+        try:
+            rows = self._conn.execute(
+                "SELECT decoder, chunk_index, frames, payload FROM payload_chunks "
+                "WHERE point_id=? ORDER BY chunk_index", (point_id,)).fetchall()
+        except sqlite3.OperationalError:  # a store written before the table existed
+            return []
+        return [(r[0], int(r[1]), int(r[2]), json.loads(r[3])) for r in rows]
+
+    def get_payload(self, kind: str, key: str):
+        """The cached JSON document under (kind, key), or None."""
+        try:
+            row = self._conn.execute("SELECT payload FROM payloads WHERE kind=? AND key=?",
+                                     (kind, key)).fetchone()
+        except sqlite3.OperationalError:
+            return None
+        return None if row is None else json.loads(row[0])
+
     def chunks(self, point_id: int) -> list[StoredChunk]:
         """All stored chunks of a point (any decoder, any size)."""
         rows = self._conn.execute(
