@@ -49,8 +49,8 @@ started from converged reweighted sum-product beliefs, one oracle call
 certifies the point, so the warm start is the default. Its cost against
 sum-product (same thread count, batched and single-frame) is measured by
 ``experiments/bench_certified.py``; see ``experiments/results/bench_certified.md``
-(in the first honest measurement, 70–180 times sum-product's batched per-frame
-time, almost all of it the warm start).
+(tens to hundreds of times sum-product's batched per-frame time, most of it
+the warm start to a 1e-12 fixed point).
 
 The duality gap ``g = <grad F(tau), tau - s>`` (``s`` the oracle vertex) bounds
 ``F(tau) - F*`` from above when ``F`` is convex. For non-convex (Bethe) ``F`` it
