@@ -46,8 +46,11 @@ Measured (``experiments/fw_convergence.py``, ``experiments/bench_frank_wolfe.py`
 from the uniform point no variant reaches a relative gap of 1e-4 in 15 s on
 the PEG (3,6) n = 504 code (HiGHS calls of 1–5 s each, > 99 % of the time);
 started from converged reweighted sum-product beliefs, one oracle call
-certifies the point (about 0.05 s per frame at 1.5 and 2.5 dB, 60–220 times
-sum-product's time), so the warm start is the default.
+certifies the point, so the warm start is the default. Its cost against
+sum-product (same thread count, batched and single-frame) is measured by
+``experiments/bench_certified.py``; see ``experiments/results/bench_certified.md``
+(tens to hundreds of times sum-product's batched per-frame time, most of it
+the warm start to a 1e-12 fixed point).
 
 The duality gap ``g = <grad F(tau), tau - s>`` (``s`` the oracle vertex) bounds
 ``F(tau) - F*`` from above when ``F`` is convex. For non-convex (Bethe) ``F`` it
@@ -908,7 +911,10 @@ def solve_frame(prob: FWProblem, oracle, lam: np.ndarray, *, variant: str = "van
     if trace:
         out_trace = {k: np.asarray(v, dtype=np.float64 if k != "kind" else np.int64)
                      for k, v in tr.items()}
-    gap_out = float(gap) if math.isfinite(gap) else float(np.finfo(float).max)
+    # no oracle answer at all (e.g. the first call hit the time cap): the gap is
+    # unknown, reported as +inf (never a huge finite stand-in), with the status
+    # "time_limit" or "oracle_failed" set above
+    gap_out = float(gap) if math.isfinite(gap) else math.inf
     return FWFrameResult(tau_bits=tb, tau_local=tl, free_energy=F, gap=gap_out,
                          relative_gap=_relative(gap_out, F), iterations=it, oracle_calls=calls,
                          oracle_seconds=o_sec, seconds=seconds, status=status, eps=eps,

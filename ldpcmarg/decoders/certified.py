@@ -1,0 +1,853 @@
+r"""Batched certified tree-reweighted marginals: fast warm start, projection, certificate.
+
+An experimental batched route to the certified marginals of the ``fw`` decoder
+for a convex free energy (tree-reweighted weights ``rho``, DESIGN.md §5, §5a). For a
+batch of F frames it runs, as numba kernels parallel over frames (``prange``; every
+frame owns its buffers):
+
+1. **Warm start** — reweighted sum-product with the same ``rho``
+   (posterior ``L_i = lambda_i + sum_c rho_c l_ci``, cavity ``v_ci = L_i - l_ci``,
+   check message ``l_ci = boxplus_{j != i} v_cj``), stopped at a loose tolerance
+   on the largest message change. Schedules: ``"layered"`` (checks one after
+   another, each refreshing its bits' posteriors at once) or ``"flooding"``;
+   relaxation ``new = old + omega (update - old)`` (``omega < 1`` damps,
+   ``omega > 1`` over-relaxes), optionally adapted: whenever the largest change
+   grows from one sweep to the next, ``omega`` is multiplied by ``0.7`` (down to
+   ``omega_min``). Measured in ``experiments/bench_certified.py``.
+2. **Projection** — the beliefs are made a point of the local polytope ``L``:
+   per check, damped Newton on the cavity LLRs ``w`` (the marginals of
+   ``tau_c(S) ∝ exp(-sum_t S_t w_t)`` have Jacobian ``-Cov``) until the check's
+   bit marginals equal the posteriors, then one multiplicative step
+   ``tau(S) <- tau(S) (1 + sum_t c_t (S_t - m_t))`` with ``Cov c = q - m`` (linear
+   in ``tau``: exact to rounding, every entry moves in proportion to itself).
+   Where Newton fails — unconverged posteriors can lie just outside a check's
+   parity polytope, e.g. ``q_t > sum_{u != t} q_u`` — the mismatch is removed by
+   adding ``sum_t delta_t (2 S_t - 1) / 2**(d-2)`` and the whole point is mixed
+   with the uniform point by the least weight ``theta`` keeping every entry >= 0.
+3. **Certificates** — with ``mu_ci = rho_c w_ci``: (a) the *entropic*
+   Lagrangian bound ``G(mu) <= F*`` (weak duality for the separable pieces of
+   F: each check gives ``-rho_c ln sum_S exp(-sum_{i in S} w_ci)``, each bit
+   ``-kappa_i softplus(-b_i / kappa_i)`` or ``min(0, b_i)`` for ``kappa_i <= 0``);
+   (b) optionally the linear bound of DESIGN.md §5a,
+   ``<grad F(tau), tau> - D(mu) >= F(tau) - F*``. The certified gap is the smaller
+   of ``F(tau) - G(mu)`` and (b).
+4. **Polishing** — frames not yet certified continue their message passing
+   with a tolerance ten times smaller and are projected and certified again,
+   up to ``polish_rounds`` times.
+
+Measured (``experiments/bench_certified.py``, warm-start study in
+``experiments/results/bench_certified.md``): the layered schedule needs about
+40 % of the sweeps of flooding with damping 0.5, but neither the loose
+tolerance nor the certificates close the gap cheaply: the entropic bound
+levels off at a relative gap of about 2e-3 because sampled-hyperforest
+weights leave some bits with ``kappa_i < 0`` (there the separable bit piece is
+concave and the relaxation is not tight), and the linear bound needs the
+posteriors near the fixed point (the projection's uniform mix ``theta`` is
+about twice the last message change). So this path is not used by ``fw`` yet;
+what is missing is a convex split of the entropy (Heskes' allocation
+``alpha_ic``) in the entropic bound.
+
+Box-plus is evaluated exactly at every magnitude (no clamped tanh/atanh, no
+overflow): ``a ⊞ b = sign(a) sign(b) min(|a|, |b|) + log1p(exp(-|a+b|))
+- log1p(exp(-|a-b|))`` (Hagenauer, Offer & Papke, IEEE Trans. IT 42(2), 1996,
+the "Jacobian logarithm" form of the boxplus).
+
+Conventions: LLR positive favours 0; ``tau_i = P(x_i = 1) = 1 / (1 + exp(L_i))``;
+local codewords in the flat layout of :class:`ldpcmarg.code.parity_check.LocalCodewords`;
+edges in check-major order.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import dataclass
+
+import numba as nb
+import numpy as np
+
+from .._settings import LLR_MAX, NUMBA_OPTS
+from ..errors import InputError
+from .lp_dual import (
+    _bound_kernel,
+    _graph_of,
+    _reduced_bits_kernel,
+    _star_sweep_kernel,
+    _theta_kernel,
+)
+
+__all__ = ["boxplus", "CertifiedBatch", "CertifiedTRW", "SCHEDULES"]
+
+#: Floor inside logarithms (same as the Frank–Wolfe solver): gradients stay finite.
+_TINY = 1e-300
+
+SCHEDULES = ("layered", "flooding")
+
+
+# ------------------------------------------------------------------ kernels
+@nb.njit(**NUMBA_OPTS)
+def _boxplus(a, b):
+    """Exact box-plus of two LLRs: the LLR of x XOR y, finite for finite inputs."""
+    s = math.copysign(1.0, a) * math.copysign(1.0, b)
+    m = min(abs(a), abs(b))
+    # log1p(exp(-|a+b|)) - log1p(exp(-|a-b|)) as one log1p (argument in (-1, 1)):
+    # one logarithm instead of two, same value to rounding
+    ep = math.exp(-abs(a + b))
+    em = math.exp(-abs(a - b))
+    return s * m + math.log1p((ep - em) / (1.0 + em))
+
+
+@nb.njit(**NUMBA_OPTS)
+def _extrinsic(v, d, fwd, out):
+    """out[k] = boxplus of v[j] over j != k (k < d), by prefix/suffix box-plus.
+
+    ``fwd`` is scratch of length >= d. Needs d >= 2.
+    """
+    fwd[0] = v[0]
+    for k in range(1, d - 1):
+        fwd[k] = _boxplus(fwd[k - 1], v[k])
+    acc = v[d - 1]
+    out[d - 1] = fwd[d - 2]
+    for k in range(d - 2, 0, -1):
+        out[k] = _boxplus(fwd[k - 1], acc)
+        acc = _boxplus(acc, v[k])
+    out[0] = acc
+
+
+@nb.njit(**NUMBA_OPTS)
+def _mp_frame(llr, check_ptr, edge_var, rho, layered, omega0, adaptive, omega_min,
+              max_iter, tol, c2v, L, Lnew, v, ext, fwd, state):
+    """Reweighted sum-product on one frame, continuing from ``c2v``/``L``.
+
+    ``state`` (3,) float64 carries (iterations so far, current omega, last
+    residual) between calls; a fresh frame has state = (0, omega0, inf) and
+    ``c2v = 0``, ``L = llr``. Stops when the largest message change of a sweep is
+    <= tol or after ``max_iter`` further sweeps. Returns the last residual.
+    """
+    n = llr.shape[0]
+    m = check_ptr.shape[0] - 1
+    omega = state[1]
+    prev = state[2]
+    it = 0
+    resid = prev
+    while it < max_iter:
+        maxd = 0.0
+        if layered:
+            for c in range(m):
+                a = check_ptr[c]
+                d = check_ptr[c + 1] - a
+                if d < 2:
+                    continue
+                r = rho[c]
+                for k in range(d):
+                    v[k] = L[edge_var[a + k]] - c2v[a + k]
+                _extrinsic(v, d, fwd, ext)
+                for k in range(d):
+                    e = a + k
+                    old = c2v[e]
+                    ch = ext[k] - old
+                    if abs(ch) > maxd:
+                        maxd = abs(ch)
+                    new = old + omega * ch
+                    c2v[e] = new
+                    L[edge_var[e]] += r * (new - old)
+        else:
+            for i in range(n):
+                Lnew[i] = llr[i]
+            for c in range(m):
+                a = check_ptr[c]
+                d = check_ptr[c + 1] - a
+                if d < 2:
+                    continue
+                r = rho[c]
+                for k in range(d):
+                    v[k] = L[edge_var[a + k]] - c2v[a + k]
+                _extrinsic(v, d, fwd, ext)
+                for k in range(d):
+                    e = a + k
+                    old = c2v[e]
+                    ch = ext[k] - old
+                    if abs(ch) > maxd:
+                        maxd = abs(ch)
+                    new = old + omega * ch
+                    c2v[e] = new
+                    Lnew[edge_var[e]] += r * new
+            for i in range(n):
+                L[i] = Lnew[i]
+        it += 1
+        if adaptive and maxd > prev and omega > omega_min:
+            omega = max(omega * 0.7, omega_min)
+        prev = maxd
+        resid = maxd
+        if maxd <= tol:
+            break
+    if layered and it > 0:
+        # refresh L from the messages: the running sums drift by rounding
+        for i in range(n):
+            Lnew[i] = llr[i]
+        for c in range(m):
+            for e in range(check_ptr[c], check_ptr[c + 1]):
+                Lnew[edge_var[e]] += rho[c] * c2v[e]
+        for i in range(n):
+            L[i] = Lnew[i]
+    state[0] += it
+    state[1] = omega
+    state[2] = prev
+    return resid
+
+
+@nb.njit(parallel=True, **NUMBA_OPTS)
+def _mp_batch(llr, check_ptr, edge_var, rho, layered, omega0, adaptive, omega_min, max_iter,
+              tol, active, c2v, L, state, resid, dmax):
+    """:func:`_mp_frame` on every active frame of a batch (prange over frames)."""
+    F, n = llr.shape
+    for f in nb.prange(F):
+        if not active[f]:
+            continue
+        Lnew = np.empty(n, dtype=np.float64)
+        v = np.empty(dmax + 1, dtype=np.float64)
+        ext = np.empty(dmax + 1, dtype=np.float64)
+        fwd = np.empty(dmax + 1, dtype=np.float64)
+        resid[f] = _mp_frame(llr[f], check_ptr, edge_var, rho, layered, omega0, adaptive,
+                             omega_min, max_iter, tol, c2v[f], L[f], Lnew, v, ext, fwd, state[f])
+
+
+@nb.njit(**NUMBA_OPTS)
+def _prob_one(llr):
+    """P(x = 1) = 1 / (1 + exp(llr)), without overflow."""
+    if llr >= 0.0:
+        e = math.exp(-llr)
+        return e / (1.0 + e)
+    return 1.0 / (1.0 + math.exp(llr))
+
+
+@nb.njit(**NUMBA_OPTS)
+def _xlogx(t):
+    if t <= 0.0:
+        return 0.0
+    return t * math.log(t)
+
+
+@nb.njit(**NUMBA_OPTS)
+def _safe_log(t):
+    return math.log(t if t > _TINY else _TINY)
+
+
+@nb.njit(**NUMBA_OPTS)
+def _solve_scaled(C, rhs, d, x, piv):
+    """Solve the d x d symmetric system C x = rhs (diagonally scaled, partial pivoting).
+
+    Rows/columns with a zero diagonal (a bit without variance) get x = 0.
+    Overwrites C and rhs. Returns False when the system is numerically singular.
+    """
+    for t in range(d):
+        piv[t] = 1.0 / math.sqrt(C[t, t]) if C[t, t] > 0.0 else 0.0
+    for t in range(d):
+        for u in range(d):
+            C[t, u] *= piv[t] * piv[u]
+        rhs[t] *= piv[t]
+        if piv[t] == 0.0:
+            C[t, t] = 1.0
+            rhs[t] = 0.0
+    for k in range(d):
+        p = k
+        for t in range(k + 1, d):
+            if abs(C[t, k]) > abs(C[p, k]):
+                p = t
+        if abs(C[p, k]) < 1e-14:
+            return False
+        if p != k:
+            for u in range(d):
+                tmp = C[k, u]
+                C[k, u] = C[p, u]
+                C[p, u] = tmp
+            tmp = rhs[k]
+            rhs[k] = rhs[p]
+            rhs[p] = tmp
+        for t in range(k + 1, d):
+            f = C[t, k] / C[k, k]
+            if f != 0.0:
+                for u in range(k, d):
+                    C[t, u] -= f * C[k, u]
+                rhs[t] -= f * rhs[k]
+    for kk in range(d):
+        k = d - 1 - kk
+        s = rhs[k]
+        for u in range(k + 1, d):
+            s -= C[k, u] * x[u]
+        x[k] = s / C[k, k]
+    for t in range(d):
+        x[t] *= piv[t]
+    return True
+
+
+@nb.njit(**NUMBA_OPTS)
+def _check_marginals(tl, bits, o, K, bp, d, out):
+    for t in range(d):
+        out[t] = 0.0
+    for j in range(K):
+        x = tl[o + j]
+        base = bp + j * d
+        for t in range(d):
+            if bits[base + t]:
+                out[t] += x
+
+
+@nb.njit(**NUMBA_OPTS)
+def _product_belief(w, bits, o, K, bp, d, tl):
+    """tl[o:o+K] = exp(-sum_t S_t w_t) / Z over the patterns S; returns ln Z.
+
+    ``-ln Z`` is the exact minimum of ``sum_S tau(S) [ln tau(S) + sum_t S_t w_t]``
+    over the simplex (the check term of the entropic dual).
+    """
+    best = -np.inf
+    for j in range(K):
+        s = 0.0
+        base = bp + j * d
+        for t in range(d):
+            if bits[base + t]:
+                s -= w[t]
+        tl[o + j] = s
+        if s > best:
+            best = s
+    tot = 0.0
+    for j in range(K):
+        x = math.exp(tl[o + j] - best)
+        tl[o + j] = x
+        tot += x
+    for j in range(K):
+        tl[o + j] /= tot
+    return best + math.log(tot)
+
+
+@nb.njit(**NUMBA_OPTS)
+def _covariance(tl, bits, o, K, bp, d, mt, C):
+    for t in range(d):
+        for u in range(d):
+            C[t, u] = 0.0
+    for j in range(K):
+        x = tl[o + j]
+        base = bp + j * d
+        for t in range(d):
+            if bits[base + t]:
+                for u in range(t, d):
+                    if bits[base + u]:
+                        C[t, u] += x
+    for t in range(d):
+        for u in range(t, d):
+            C[t, u] -= mt[t] * mt[u]
+            C[u, t] = C[t, u]
+
+
+@nb.njit(**NUMBA_OPTS)
+def _project_frame(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, offset, bit_ptr, bits,
+                   rho, kappa, newton_max, tb, tl, mu, w, w0, q, mt, cvec, rhs, C, piv, out):
+    """Exact point of L from posteriors ``L`` (n,) and messages ``c2v`` (E,), and its certificate.
+
+    Writes ``tb`` (n,), ``tl`` (K,), ``mu`` (E,) = rho_c w_c. ``out`` (5,)
+    receives (F(tau), G(mu) the entropic dual bound, theta = weight of the
+    uniform point, largest remaining marginal mismatch, Newton steps).
+    Scratch: w, q, mt, cvec, rhs, piv (dmax + 1,), C (dmax + 1, dmax + 1).
+    """
+    n = L.shape[0]
+    m = check_ptr.shape[0] - 1
+    for i in range(n):
+        tb[i] = _prob_one(L[i])
+    theta = 0.0
+    worst_mismatch = 0.0
+    steps = 0
+    f_checks = 0.0
+    g_checks = 0.0
+    for c in range(m):
+        a = check_ptr[c]
+        d = check_ptr[c + 1] - a
+        o = offset[c]
+        K = offset[c + 1] - o
+        bp = bit_ptr[c]
+        for k in range(d):
+            w[k] = L[edge_var[a + k]] - c2v[a + k]
+            q[k] = tb[edge_var[a + k]]
+            w0[k] = w[k]
+        # Newton on the cavity LLRs w: the marginals of exp(-sum S_t w_t) have
+        # Jacobian -Cov, so w <- w - Cov^-1 (q - m) (the belief stays positive)
+        ok = False
+        lnz = 0.0
+        small = False
+        for _ in range(newton_max):
+            lnz = _product_belief(w, bits, o, K, bp, d, tl)
+            _check_marginals(tl, bits, o, K, bp, d, mt)
+            big = 0.0
+            for t in range(d):
+                rhs[t] = q[t] - mt[t]
+                big = max(big, abs(rhs[t]))
+            if big <= 1e-17:
+                ok = True
+                small = False
+                break
+            _covariance(tl, bits, o, K, bp, d, mt, C)
+            if not _solve_scaled(C, rhs, d, cvec, piv):
+                break
+            steps += 1
+            cmax = 0.0
+            for t in range(d):
+                cmax = max(cmax, abs(cvec[t]))
+            if cmax <= 1e-7:
+                ok = True
+                small = True
+                break
+            # damped Newton: halve the step until Phi(w) = ln Z(w) + <q, w> (convex,
+            # gradient q - m, Hessian Cov) decreases; near-deterministic checks make Cov
+            # ill-conditioned and full steps overshoot
+            phi0 = lnz
+            for t in range(d):
+                phi0 += q[t] * w[t]
+                rhs[t] = w[t]
+            alpha = 1.0
+            accepted = False
+            for _h in range(12):
+                for t in range(d):
+                    w[t] = rhs[t] - alpha * cvec[t]
+                phi = _product_belief(w, bits, o, K, bp, d, tl)
+                for t in range(d):
+                    phi += q[t] * w[t]
+                if phi <= phi0:
+                    accepted = True
+                    break
+                alpha *= 0.5
+            if not accepted:
+                for t in range(d):
+                    w[t] = rhs[t]
+                break
+        # check negentropy sum_S tau ln tau of the final belief, via ln tau = -S.w - ln Z
+        negent = 0.0
+        if ok and small:
+            # last step is linear: tau(S) <- tau(S) (1 + sum_t c_t (S_t - m_t)) matches the
+            # marginals exactly (linear in tau) and moves every entry by < 1e-6 of itself
+            for j in range(K):
+                base = bp + j * d
+                fac = 1.0
+                sw = 0.0
+                for t in range(d):
+                    if bits[base + t]:
+                        fac += cvec[t] * (1.0 - mt[t])
+                        sw += w[t]
+                    else:
+                        fac -= cvec[t] * mt[t]
+                x = tl[o + j] * fac
+                tl[o + j] = x
+                if x > 0.0:
+                    negent += x * (-sw - lnz + math.log1p(fac - 1.0))
+        elif ok:
+            for j in range(K):
+                base = bp + j * d
+                sw = 0.0
+                for t in range(d):
+                    if bits[base + t]:
+                        sw += w[t]
+                x = tl[o + j]
+                if x > 0.0:
+                    negent += x * (-sw - lnz)
+        else:
+            # Newton failed: the bit targets lie (nearly) outside this check's parity
+            # polytope (unconverged posteriors). Keep the message cavities for the
+            # multipliers (near the dual optimum; Newton drifts off to infinity here),
+            # remove the mismatch exactly by adding
+            for k in range(d):
+                w[k] = w0[k]
+            # exact additive correction
+            # sum_t delta_t (2 S_t - 1) / 2**(d-2), then the uniform mix below
+            lnz = _product_belief(w, bits, o, K, bp, d, tl)
+            _check_marginals(tl, bits, o, K, bp, d, mt)
+            scale = 1.0 / 2.0 ** (d - 2)
+            for j in range(K):
+                corr = 0.0
+                base = bp + j * d
+                for t in range(d):
+                    dl = q[t] - mt[t]
+                    corr += dl if bits[base + t] else -dl
+                x = tl[o + j] + corr * scale
+                tl[o + j] = x
+                if x < 0.0:
+                    u = 1.0 / K
+                    need = -x / (u - x)
+                    if need > theta:
+                        theta = need
+            negent = np.nan  # recomputed below from the entries
+        _check_marginals(tl, bits, o, K, bp, d, mt)
+        for t in range(d):
+            worst_mismatch = max(worst_mismatch, abs(q[t] - mt[t]))
+        f_checks += rho[c] * negent if not math.isnan(negent) else 0.0
+        if math.isnan(negent):
+            f_checks = np.nan
+        # dual check term: min over the simplex of rho (negentropy + <tau, S.w>) = -rho ln Z
+        g_checks -= rho[c] * lnz
+        for k in range(d):
+            mu[a + k] = rho[c] * w[k]
+    if theta > 0.0:
+        theta = min(1.0, 2.0 * theta)  # margin: no entry ends at exactly 0
+        for i in range(n):
+            tb[i] = (1.0 - theta) * tb[i] + 0.5 * theta
+        for c in range(m):
+            o = offset[c]
+            K = offset[c + 1] - o
+            for j in range(o, o + K):
+                x = (1.0 - theta) * tl[j] + theta / K
+                tl[j] = x if x > 0.0 else 0.0
+    if math.isnan(f_checks) or theta > 0.0:
+        f_checks = 0.0
+        for c in range(m):
+            a = 0.0
+            for j in range(offset[c], offset[c + 1]):
+                a += _xlogx(tl[j])
+            f_checks += rho[c] * a
+    # bits: F term lam t + kappa (t ln t + (1-t) ln(1-t)); dual term
+    # min over [0, 1] of b t + kappa (...), b = lam - sum_c mu_ic:
+    # -kappa softplus(-b / kappa) for kappa > 0, min(0, b) for kappa <= 0 (endpoints)
+    f_bits = 0.0
+    g_bits = 0.0
+    for i in range(n):
+        t = tb[i]
+        k = kappa[i]
+        f_bits += llr[i] * t + k * (_xlogx(t) + _xlogx(1.0 - t))
+        b = llr[i]
+        for p in range(var_ptr[i], var_ptr[i + 1]):
+            b -= mu[var_edges[p]]
+        if k > 0.0:
+            x = -b / k
+            g_bits -= k * (max(x, 0.0) + math.log1p(math.exp(-abs(x))))
+        else:
+            g_bits += min(0.0, b)
+    out[0] = f_bits + f_checks
+    out[1] = g_bits + g_checks
+    out[2] = theta
+    out[3] = worst_mismatch
+    out[4] = steps
+
+
+@nb.njit(**NUMBA_OPTS)
+def _certify_frame(lam, tb, tl, kappa, rho_loc, check_ptr, edge_check, var_ptr, var_edges,
+                   offset, bit_ptr, bits, masks, mu, sweeps, gb, gl, theta_s, r, argmin, order,
+                   delta, out):
+    """F(tau), <grad F, tau> and the best D(mu) over up to ``sweeps`` hard star sweeps.
+
+    ``out`` (4,) receives (F, gtau, bound, sweeps done). Stops sweeping once the
+    bound stops rising.
+    """
+    n = tb.shape[0]
+    K = tl.shape[0]
+    f = 0.0
+    gtau = 0.0
+    for i in range(n):
+        t = tb[i]
+        f += lam[i] * t + kappa[i] * (_xlogx(t) + _xlogx(1.0 - t))
+        g = lam[i] + kappa[i] * (_safe_log(t) - _safe_log(1.0 - t))
+        gb[i] = g
+        gtau += g * t
+    for j in range(K):
+        t = tl[j]
+        f += rho_loc[j] * _xlogx(t)
+        g = rho_loc[j] * _safe_log(t)
+        gl[j] = g
+        gtau += g * t
+    _theta_kernel(check_ptr, offset, bit_ptr, bits, gl, mu, theta_s)
+    _reduced_bits_kernel(var_ptr, var_edges, gb, mu, r)
+    bound = _bound_kernel(offset, theta_s, r, argmin)
+    done = 0
+    if sweeps > 0:
+        best_mu = mu.copy()
+        best = bound
+        for _ in range(sweeps):
+            _star_sweep_kernel(check_ptr, edge_check, var_ptr, var_edges, offset, masks, gb, mu,
+                               theta_s, r, order, 0.0, delta)
+            done += 1
+            b = _bound_kernel(offset, theta_s, r, argmin)
+            if b > best + 1e-12 * (1.0 + abs(best)):
+                best = b
+                best_mu[:] = mu
+            else:
+                break
+        mu[:] = best_mu
+        # exact re-evaluation at the kept multipliers (theta drifts by rounding)
+        _theta_kernel(check_ptr, offset, bit_ptr, bits, gl, mu, theta_s)
+        _reduced_bits_kernel(var_ptr, var_edges, gb, mu, r)
+        bound = _bound_kernel(offset, theta_s, r, argmin)
+    out[0] = f
+    out[1] = gtau
+    out[2] = bound
+    out[3] = done
+
+
+@nb.njit(parallel=True, **NUMBA_OPTS)
+def _project_certify_batch(llr, L, c2v, check_ptr, edge_var, edge_check, var_ptr, var_edges,
+                           offset, bit_ptr, bits, masks, rho, rho_loc, kappa, newton_max, linear,
+                           sweeps, active, tb, tl, mu, out, dmax, dvmax):
+    """Projection and certificates of every active frame (prange over frames).
+
+    ``out`` (F, 8): F(tau), entropic dual bound G(mu), theta, mismatch, Newton
+    steps, and with ``linear``: <grad F, tau>, the linear Lagrangian bound D,
+    star sweeps (else NaN, NaN, 0).
+    """
+    F, n = llr.shape
+    K = tl.shape[1]
+    m = check_ptr.shape[0] - 1
+    for f in nb.prange(F):
+        if not active[f]:
+            continue
+        w = np.empty(dmax + 1, dtype=np.float64)
+        w0 = np.empty(dmax + 1, dtype=np.float64)
+        q = np.empty(dmax + 1, dtype=np.float64)
+        mt = np.empty(dmax + 1, dtype=np.float64)
+        cvec = np.empty(dmax + 1, dtype=np.float64)
+        rhs = np.empty(dmax + 1, dtype=np.float64)
+        piv = np.empty(dmax + 1, dtype=np.float64)
+        C = np.empty((dmax + 1, dmax + 1), dtype=np.float64)
+        o5 = np.empty(5, dtype=np.float64)
+        _project_frame(llr[f], L[f], c2v[f], check_ptr, edge_var, var_ptr, var_edges, offset,
+                       bit_ptr, bits, rho, kappa, newton_max, tb[f], tl[f], mu[f], w, w0, q, mt,
+                       cvec, rhs, C, piv, o5)
+        for k in range(5):
+            out[f, k] = o5[k]
+        out[f, 5] = np.nan
+        out[f, 6] = np.nan
+        out[f, 7] = 0.0
+        if linear:
+            gb = np.empty(n, dtype=np.float64)
+            gl = np.empty(K, dtype=np.float64)
+            th = np.empty(K, dtype=np.float64)
+            r = np.empty(n, dtype=np.float64)
+            am = np.empty(m, dtype=np.int64)
+            order = np.arange(n)
+            delta = np.empty(dvmax + 1, dtype=np.float64)
+            o4 = np.empty(4, dtype=np.float64)
+            mu_lin = mu[f].copy()
+            _certify_frame(llr[f], tb[f], tl[f], kappa, rho_loc, check_ptr, edge_check, var_ptr,
+                           var_edges, offset, bit_ptr, bits, masks, mu_lin, sweeps, gb, gl, th,
+                           r, am, order, delta, o4)
+            out[f, 5] = o4[1]
+            out[f, 6] = o4[2]
+            out[f, 7] = o4[3]
+
+
+def _gap_of(out):
+    """Certified gap per frame: the smaller of the entropic and the linear certificate."""
+    ent = out[:, 0] - out[:, 1]
+    lin = out[:, 5] - out[:, 6]
+    gap = np.where(np.isfinite(lin), np.minimum(ent, lin), ent)
+    gap = np.maximum(gap, 0.0)
+    gap[~np.isfinite(gap)] = np.inf
+    return gap
+
+
+# ------------------------------------------------------------------ driver
+@dataclass
+class CertifiedBatch:
+    """Outcome of :meth:`CertifiedTRW.run` on F frames.
+
+    Attributes
+    ----------
+    tau_bits : ndarray of shape (F, n), float64
+        ``P(x_i = 1)`` of the projected point (a point of ``L``).
+    tau_local : ndarray of shape (F, K), float64
+        Check beliefs over local codewords (flat layout).
+    free_energy : ndarray of shape (F,), float64
+        ``F(tau)`` (nats).
+    certified_gap : ndarray of shape (F,), float64
+        ``<grad F(tau), tau> - D(mu) >= F(tau) - F*`` (convex F), nats.
+    relative_gap : ndarray of shape (F,), float64
+        ``certified_gap / max(1, |F|)``.
+    certified : ndarray of shape (F,), bool
+        Relative gap <= the requested tolerance.
+    iterations : ndarray of shape (F,), int64
+        Message-passing sweeps.
+    rounds : ndarray of shape (F,), int64
+        Certificate evaluations (1 + polishing rounds used).
+    residual : ndarray of shape (F,), float64
+        Largest message change of the last sweep (LLR units).
+    theta : ndarray of shape (F,), float64
+        Weight of the uniform point mixed in by the projection (usually 0).
+    mismatch : ndarray of shape (F,), float64
+        Largest remaining |bit marginal - check marginal| of the point (rounding level,
+        about 1e-16; the point lies in ``L`` up to it).
+    mu : ndarray of shape (F, E), float64
+        Multipliers of the certificate.
+    seconds : dict of str to float
+        Wall time of the batch per phase: ``warm_start``, ``certificate``, ``polish``.
+    entropic_gap, linear_gap : ndarray of shape (F,), float64
+        The two certificates (``linear_gap`` NaN unless requested);
+        ``certified_gap`` is the smaller.
+    """
+
+    tau_bits: np.ndarray
+    tau_local: np.ndarray
+    free_energy: np.ndarray
+    certified_gap: np.ndarray
+    relative_gap: np.ndarray
+    certified: np.ndarray
+    iterations: np.ndarray
+    rounds: np.ndarray
+    residual: np.ndarray
+    theta: np.ndarray
+    mismatch: np.ndarray
+    mu: np.ndarray
+    seconds: dict
+    entropic_gap: np.ndarray
+    linear_gap: np.ndarray
+
+
+class CertifiedTRW:
+    """Batched certified marginals for a convex (tree-reweighted) free energy.
+
+    Parameters
+    ----------
+    code : ParityCheckCode
+        Every check must have degree >= 3 (degree-2 checks force equal
+        marginals, which the per-check projection does not handle; the
+        ``fw`` decoder then uses its per-frame path).
+    rho : ndarray of shape (m,), float64
+        Check weights of a convex free energy (e.g. sampled-hyperforest TRW weights).
+    lc : LocalCodewords, optional
+    schedule : {"layered", "flooding"}
+    omega : float
+        Relaxation factor of the message updates (``new = old + omega (update - old)``).
+    adaptive : bool
+        Multiply ``omega`` by 0.7 whenever the largest message change grows.
+    omega_min : float
+    tol : float
+        First message tolerance (largest change per sweep, LLR units).
+    max_iter : int
+        Sweep cap per frame over all rounds.
+    polish_rounds : int
+        Further rounds, each continuing the message passing with a tolerance ten
+        times smaller, for frames not yet certified.
+    linear : bool
+        Also evaluate the linear (Frank–Wolfe) Lagrangian certificate of DESIGN.md
+        §5a and keep the smaller gap (costs a pass over the local codewords).
+    sweeps : int
+        Hard star sweeps of dual ascent for the linear certificate.
+    newton_max : int
+        Newton steps of the per-check projection.
+    """
+
+    def __init__(self, code, rho, *, lc=None, schedule: str = "layered", omega: float = 1.0,
+                 adaptive: bool = True, omega_min: float = 0.3, tol: float = 1e-4,
+                 max_iter: int = 2000, polish_rounds: int = 4, linear: bool = False,
+                 sweeps: int = 0, newton_max: int = 8):
+        if schedule not in SCHEDULES:
+            raise InputError(f"The warm-start schedule must be one of {SCHEDULES}; got "
+                             f"{schedule!r}.")
+        if code.m and int(code.check_degrees.min()) < 3:
+            raise InputError("The batched certified path needs every check of degree >= 3; "
+                             "use fw's per-frame path for this code.")
+        if not (0.0 < omega < 2.0) or not (0.0 < omega_min <= omega):
+            raise InputError(f"Relaxation needs 0 < omega_min <= omega < 2; got omega={omega}, "
+                             f"omega_min={omega_min}.")
+        self.code = code
+        self.lc = lc if lc is not None else code.local_codewords()
+        self._gr = _graph_of(code, self.lc)
+        self.rho = np.ascontiguousarray(rho, dtype=np.float64)
+        self.kappa = 1.0 - np.bincount(code.edge_var, weights=self.rho[code.edge_check],
+                                       minlength=code.n)
+        self.rho_loc = np.ascontiguousarray(self.rho[self.lc.owner])
+        self.schedule, self.omega, self.adaptive = schedule, float(omega), bool(adaptive)
+        self.omega_min, self.tol, self.max_iter = float(omega_min), float(tol), int(max_iter)
+        self.polish_rounds, self.sweeps = int(polish_rounds), int(sweeps)
+        self.newton_max, self.linear = int(newton_max), bool(linear)
+        self._dmax = int(code.check_degrees.max()) if code.m else 0
+        self._dvmax = max(int(code.var_degrees.max()) if code.n else 0, 1)
+
+    def run(self, llr, *, gap_tol: float = 1e-4, abs_gap_tol: float = 0.0) -> CertifiedBatch:
+        """Certified TRW marginals of F frames.
+
+        Parameters
+        ----------
+        llr : ndarray of shape (F, n), float64
+            Channel LLRs (positive favours 0); clipped to ``+-LLR_MAX``.
+        gap_tol : float
+            Relative target: ``certified_gap <= gap_tol * max(1, |F(tau)|)``.
+        abs_gap_tol : float
+            Absolute target (nats); a frame is certified when either holds.
+
+        Returns
+        -------
+        CertifiedBatch
+        """
+        gr = self._gr
+        lam = np.ascontiguousarray(np.clip(llr, -LLR_MAX, LLR_MAX), dtype=np.float64)
+        F, n = lam.shape
+        E, K = gr.E, gr.K
+        c2v = np.zeros((F, E))
+        L = lam.copy()
+        state = np.empty((F, 3))
+        state[:, 0] = 0.0
+        state[:, 1] = self.omega
+        state[:, 2] = np.inf
+        resid = np.full(F, np.inf)
+        tb = np.empty((F, n))
+        tl = np.empty((F, K))
+        mu = np.empty((F, E))
+        out = np.zeros((F, 8))
+        active = np.ones(F, dtype=np.bool_)
+        done = np.zeros(F, dtype=np.bool_)
+        rounds = np.zeros(F, dtype=np.int64)
+        secs = {"warm_start": 0.0, "certificate": 0.0, "polish": 0.0}
+        tol = self.tol
+        layered = self.schedule == "layered"
+        for rnd in range(self.polish_rounds + 1):
+            budget = self.max_iter - state[:, 0]
+            active &= budget > 0
+            if not active.any():
+                break
+            t0 = time.perf_counter()
+            # each round gets the remaining sweep budget of its frames (max over them)
+            _mp_batch(lam, gr.check_ptr, gr.edge_var, self.rho, layered, self.omega,
+                      self.adaptive, self.omega_min, int(budget[active].max()), tol, active,
+                      c2v, L, state, resid, self._dmax)
+            t1 = time.perf_counter()
+            _project_certify_batch(lam, L, c2v, gr.check_ptr, gr.edge_var, gr.edge_check,
+                                   gr.var_ptr, gr.var_edges, gr.offset, gr.bit_ptr, gr.bits,
+                                   gr.masks, self.rho, self.rho_loc, self.kappa, self.newton_max,
+                                   self.linear, self.sweeps, active, tb, tl, mu, out, self._dmax,
+                                   self._dvmax)
+            t2 = time.perf_counter()
+            secs["polish" if rnd else "warm_start"] += t1 - t0
+            secs["certificate"] += t2 - t1
+            rounds[active] += 1
+            gap = _gap_of(out)
+            target = np.maximum(abs_gap_tol, gap_tol * np.maximum(1.0, np.abs(out[:, 0])))
+            done |= active & (gap <= target)
+            active &= ~done
+            tol *= 0.1
+        f_val = out[:, 0].copy()
+        gap = _gap_of(out)
+        return CertifiedBatch(tau_bits=tb, tau_local=tl, free_energy=f_val, certified_gap=gap,
+                              relative_gap=gap / np.maximum(1.0, np.abs(f_val)), certified=done,
+                              iterations=state[:, 0].astype(np.int64), rounds=rounds,
+                              residual=resid, theta=out[:, 2].copy(),
+                              mismatch=out[:, 3].copy(), mu=mu, seconds=secs,
+                              entropic_gap=np.maximum(out[:, 0] - out[:, 1], 0.0),
+                              linear_gap=np.maximum(out[:, 5] - out[:, 6], 0.0))
+
+
+def boxplus(a, b):
+    """Exact box-plus of LLRs: ``ln P(x XOR y = 0) - ln P(x XOR y = 1)``, elementwise.
+
+    Parameters
+    ----------
+    a, b : float or ndarray of float64
+        LLRs of independent bits (positive favours 0), any finite magnitude.
+
+    Returns
+    -------
+    ndarray of float64
+        ``sign(a) sign(b) min(|a|, |b|) + log1p(exp(-|a+b|)) - log1p(exp(-|a-b|))``.
+    """
+    a = np.asarray(a, dtype=np.float64)
+    b = np.asarray(b, dtype=np.float64)
+    if not (np.all(np.isfinite(a)) and np.all(np.isfinite(b))):
+        raise InputError("boxplus needs finite LLRs.")
+    a, b = np.broadcast_arrays(a, b)
+    out = np.empty(a.shape)
+    fa, fb, fo = a.ravel(), b.ravel(), out.reshape(-1)
+    for k in range(fa.size):
+        fo[k] = _boxplus(float(fa[k]), float(fb[k]))
+    return out

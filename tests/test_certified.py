@@ -1,0 +1,87 @@
+"""Batched certified TRW marginals: exact box-plus, points in L, valid certificates."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from test_frank_wolfe import awgn_llr, brute_force
+from test_hyperforest import random_regular_code
+
+import ldpcmarg as lm
+from ldpcmarg.decoders import frank_wolfe as fw
+from ldpcmarg.decoders.certified import CertifiedTRW, boxplus
+from ldpcmarg.decoders.lp import LocalPolytopeLP
+
+
+def test_boxplus_matches_the_tanh_rule_and_never_overflows():
+    # a boxplus b = 2 atanh(tanh(a/2) tanh(b/2)) (Hagenauer, Offer & Papke 1996)
+    rng = np.random.default_rng(0)
+    a, b = rng.normal(0, 3, 200), rng.normal(0, 3, 200)
+    ref = 2 * np.arctanh(np.tanh(a / 2) * np.tanh(b / 2))
+    assert np.allclose(boxplus(a, b), ref, rtol=1e-12, atol=1e-13)
+    # large magnitudes, where tanh saturates to 1 in float64: the independent form
+    # a boxplus b = ln(1 + e^(a+b)) - ln(e^a + e^b) (same reference) via logaddexp
+    a2 = np.array([40.0, -800.0, 1e4, 25.0])
+    b2 = np.array([60.0, 900.0, -1e4, -30.0])
+    ref2 = np.logaddexp(0.0, a2 + b2) - np.logaddexp(a2, b2)
+    big = boxplus(a2, b2)
+    assert np.all(np.isfinite(big))
+    assert np.allclose(big, ref2, rtol=1e-14, atol=0)
+    assert big[0] < 40.0  # 40 - log1p(e^-20): not clamped to the minimum
+    # tanh(huge / 2) = 1 exactly, so huge boxplus 3 = 3
+    assert boxplus(1e300, 3.0) == 3.0
+
+
+def test_projected_point_is_in_the_local_polytope():
+    code = random_regular_code(48, 3, 6, 1)
+    rho = lm.make_decoder("fw", code, entropy="trw").rho
+    lam = np.stack([awgn_llr(code, 0.8, s) for s in range(3)])
+    r = CertifiedTRW(code, rho, tol=1e-3, polish_rounds=0).run(lam)
+    lp = LocalPolytopeLP(code)
+    A, rows = lp.constraint_matrix(), lp.row_bounds()
+    for f in range(3):
+        x = np.concatenate([r.tau_bits[f], r.tau_local[f]])
+        assert np.max(np.abs(A @ x - rows)) < 1e-12
+        assert x.min() >= 0.0 and r.tau_bits[f].max() <= 1.0
+
+
+@pytest.mark.parametrize("linear", [False, True])
+def test_certified_gap_bounds_true_suboptimality(linear):
+    # F* from a long reference fw run (relative gap 1e-11); the certificate of a
+    # loosely converged warm start must never be below F(tau) - F*
+    # (weak duality, Boyd & Vandenberghe 2004 §5.1.3), and -(F - gap) >= ln Z
+    # (Wainwright, Jaakkola & Willsky 2005)
+    code = random_regular_code(24, 3, 6, 4)
+    ref = lm.make_decoder("fw", code, entropy="trw", gap_tol=1e-11, max_iter=400)
+    lam = np.stack([awgn_llr(code, 0.9, 200 + s) for s in range(3)])
+    r = CertifiedTRW(code, ref.rho, tol=1e-2, polish_rounds=0, linear=linear).run(lam, gap_tol=0)
+    res = ref.decode(lam)
+    prob = fw.FWProblem(code, ref.rho)
+    for f in range(3):
+        fv = prob.free_energy(lam[f], r.tau_bits[f], r.tau_local[f])
+        assert r.free_energy[f] == pytest.approx(fv, rel=1e-12, abs=1e-12)
+        subopt = fv - res.info["free_energy"][f]
+        assert subopt > 0  # the loose start really is suboptimal
+        assert r.certified_gap[f] >= subopt
+        ln_z = brute_force(code, lam[f])[1]
+        assert r.certified_gap[f] - fv >= ln_z
+
+
+def test_cold_run_whose_first_oracle_call_fails_reports_inf_gap():
+    class TimedOutOracle:  # an oracle whose every call hits its time cap
+        def solve(self, g, h, warm=True, time_limit=None):
+            class Sol:
+                optimal = False
+                status = "time_limit"
+                bits = np.full(g.shape, np.nan)
+                local = np.full(h.shape, np.nan)
+            return Sol()
+
+    code = random_regular_code(24, 3, 6, 0)
+    prob = fw.FWProblem(code, np.full(code.m, 0.3))
+    r = fw.solve_frame(prob, TimedOutOracle(), awgn_llr(code, 1.0, 0))
+    assert r.status == "time_limit"
+    assert r.gap == math.inf and r.relative_gap == math.inf
+    assert r.certified_gap is None
