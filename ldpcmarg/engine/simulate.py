@@ -270,27 +270,60 @@ class SweepContext:
 
 @dataclass(frozen=True)
 class ChunkTask:
-    """One chunk: SNR point, chunk index, frame count and which decoders to run."""
+    """One chunk: SNR point, chunk index, frame count and which decoders to run.
+
+    ``deadline`` (seconds since the epoch, :func:`time.time`) is set when the
+    point has a time budget: the chunk is then cut short at the first
+    sub-batch boundary after it.
+    """
 
     point_key: int
     snr: float
     chunk_index: int
     frames: int
     decoders: tuple
+    deadline: float | None = None
 
 
 @dataclass
 class ChunkResult:
-    """Counts of one chunk, per decoder spec (tuples in ``COUNT_FIELDS`` order)."""
+    """Counts of one chunk, per decoder spec (tuples in ``COUNT_FIELDS`` order).
+
+    ``cut_short`` is True when the time budget ended the chunk early; its
+    counts then cover the first ``counts[...][0]`` frames only.
+    """
 
     task: ChunkTask
     counts: dict
     channel_seconds: float
     total_seconds: float
+    cut_short: bool = False
 
 
 # ---------------------------------------------------------------- the worker side
 _STATE: dict = {}
+
+#: Seconds one sub-batch of a chunk aims at: the granularity of progress reports and of
+#: the time-budget check inside a chunk.
+SUB_BATCH_SECONDS = 1.0
+
+#: Called after every sub-batch of a chunk as ``hook(task, counts)`` (counts so far, per
+#: decoder spec) in the process that decodes it; the sweep sets it for in-process runs
+#: and worker processes set it to report to the coordinator.
+SUB_BATCH_HOOK = None
+
+
+def _warm_up(decs, n: int) -> None:
+    """Decode one easy frame with a copy of each decoder so that numba compiles (or loads
+    its cache) before any frame is timed; copies keep the decoders' own state untouched."""
+    import copy
+
+    llr = np.full((1, n), 8.0)
+    for dec in decs:
+        try:
+            copy.deepcopy(dec).decode(llr.copy())
+        except Exception:  # pragma: no cover - a real problem shows on the first chunk
+            pass
 
 
 def _worker_state(ctx: SweepContext):
@@ -301,6 +334,7 @@ def _worker_state(ctx: SweepContext):
 
         code = ParityCheckCode(ctx.H, name=ctx.code_name, source=ctx.code_source)
         decs = [make_decoder(s, code) for s in ctx.decoders]
+        _warm_up(decs, code.n)
         info = info_positions(code)
         enc = code.encoder if ctx.random_codewords else None
         if len(_STATE) > 4:
@@ -309,8 +343,54 @@ def _worker_state(ctx: SweepContext):
     return st
 
 
+def _batch_counts(res, cw, info, all_info: bool, seconds: float) -> list:
+    """Counts (``COUNT_FIELDS`` order) of one decoded batch; sums over frames, so the
+    counts of consecutive sub-batches add up to those of the whole batch."""
+    F = res.bits.shape[0]
+    err = np.asarray(res.bits, dtype=np.uint8)
+    if cw is not None:
+        err = err ^ cw
+    decided = np.ones(F, dtype=bool)
+    if res.posterior_llr is not None:
+        # An undecided bit (posterior LLR exactly 0, e.g. an unresolved BEC
+        # erasure) is an error whatever word was sent; otherwise the
+        # all-zero word would credit the decoder with every tie it left.
+        ties = res.posterior_llr == 0.0
+        err = err | ties
+        decided = ~ties.any(axis=1)
+    e_all = err.sum(axis=1, dtype=np.int64)
+    e_info = e_all if all_info else err[:, info].sum(axis=1, dtype=np.int64)
+    fe = e_all > 0
+    und = fe & np.asarray(res.valid, dtype=bool) & decided
+    capped = res.info.get("capped") if isinstance(res.info, dict) else None
+    n_capped = 0 if capped is None else int(np.count_nonzero(np.asarray(capped, dtype=bool)))
+    return [F, int(e_all.sum()), int((e_all * e_all).sum()), int(e_info.sum()),
+            int((e_info * e_info).sum()), int(fe.sum()), int(und.sum()),
+            int(np.asarray(res.iterations, dtype=np.int64).sum()), float(seconds), n_capped]
+
+
+def _next_sub_batch(done: int, total: int, per_frame: float, worst_frame: float,
+                    deadline: float | None) -> int:
+    """Frames of the next sub-batch: about ``SUB_BATCH_SECONDS`` of decoding (one frame
+    first, when nothing is measured yet), and with a deadline no more than the slowest
+    frame so far says fit before it (at least one frame)."""
+    left = total - done
+    if done == 0 or per_frame <= 0.0:
+        return 1 if left > 0 else 0
+    size = max(1, int(SUB_BATCH_SECONDS / per_frame))
+    if deadline is not None:
+        size = min(size, max(1, int((deadline - time.time()) / max(worst_frame, 1e-9))))
+    return min(left, size)
+
+
 def run_chunk(ctx: SweepContext, task: ChunkTask) -> ChunkResult:
     """Simulate one chunk for the requested decoders (runs on a worker).
+
+    The chunk's frames are drawn at once from its seed and decoded in
+    sub-batches (every decoder decodes each sub-batch), so progress can be
+    reported within a chunk and a ``task.deadline`` can cut it short between
+    sub-batches. Counts are sums over frames, so splitting does not change
+    them (decoders decode frames independently).
 
     Parameters
     ----------
@@ -320,7 +400,8 @@ def run_chunk(ctx: SweepContext, task: ChunkTask) -> ChunkResult:
     Returns
     -------
     ChunkResult
-        Raw counts; the seed makes them a pure function of ``(ctx, task)``.
+        Raw counts; the seed makes them a pure function of ``(ctx, task)``
+        unless the chunk was cut short.
     """
     code, decs, info, enc = _worker_state(ctx)
     t_start = time.perf_counter()
@@ -344,34 +425,36 @@ def run_chunk(ctx: SweepContext, task: ChunkTask) -> ChunkResult:
     llr = np.ascontiguousarray(llr, dtype=np.float64)
     t_channel = time.perf_counter() - t_start
     all_info = len(info) == n
-    counts = {}
+    totals = {ctx.decoders[i]: [0] * len(COUNT_FIELDS) for i in task.decoders}
     last = len(task.decoders) - 1
-    for j, i in enumerate(task.decoders):
-        dec = decs[i]
-        arg = llr if j == last else llr.copy()  # a decoder must not see another's scratch
-        t0 = time.perf_counter()
-        res = dec.decode(arg)
-        sec = time.perf_counter() - t0
-        err = np.asarray(res.bits, dtype=np.uint8)
-        if cw is not None:
-            err = err ^ cw
-        decided = np.ones(F, dtype=bool)
-        if res.posterior_llr is not None:
-            # An undecided bit (posterior LLR exactly 0, e.g. an unresolved BEC
-            # erasure) is an error whatever word was sent; otherwise the
-            # all-zero word would credit the decoder with every tie it left.
-            ties = res.posterior_llr == 0.0
-            err = err | ties
-            decided = ~ties.any(axis=1)
-        e_all = err.sum(axis=1, dtype=np.int64)
-        e_info = e_all if all_info else err[:, info].sum(axis=1, dtype=np.int64)
-        fe = e_all > 0
-        und = fe & np.asarray(res.valid, dtype=bool) & decided
-        counts[ctx.decoders[i]] = (
-            F, int(e_all.sum()), int((e_all * e_all).sum()), int(e_info.sum()),
-            int((e_info * e_info).sum()), int(fe.sum()), int(und.sum()),
-            int(np.asarray(res.iterations, dtype=np.int64).sum()), float(sec))
-    return ChunkResult(task, counts, t_channel, time.perf_counter() - t_start)
+    done, spent, worst, cut = 0, 0.0, 0.0, False
+    while done < F:
+        size = _next_sub_batch(done, F, spent / done if done else 0.0, worst, task.deadline)
+        part = slice(done, done + size)
+        t_batch = time.perf_counter()
+        for j, i in enumerate(task.decoders):
+            # a decoder must not see another's scratch
+            arg = np.ascontiguousarray(llr[part]) if j == last else llr[part].copy()
+            t0 = time.perf_counter()
+            res = decs[i].decode(arg)
+            sec = time.perf_counter() - t0
+            row = _batch_counts(res, None if cw is None else cw[part], info, all_info, sec)
+            tot = totals[ctx.decoders[i]]
+            for k, v in enumerate(row):
+                tot[k] += v
+        batch_seconds = time.perf_counter() - t_batch
+        spent += batch_seconds
+        worst = max(worst, batch_seconds / size)
+        done += size
+        hook = SUB_BATCH_HOOK
+        if hook is not None and done < F:
+            hook(task, {d: tuple(t) for d, t in totals.items()})
+        if task.deadline is not None and done < F and time.time() >= task.deadline:
+            cut = True
+            break
+    counts = {d: tuple(float(v) if k == _F["seconds"] else int(v) for k, v in enumerate(t))
+              for d, t in totals.items()}
+    return ChunkResult(task, counts, t_channel, time.perf_counter() - t_start, cut_short=cut)
 
 
 # ---------------------------------------------------------------- results
@@ -394,7 +477,9 @@ class PointResult:
     undetected_errors: int = 0
     iterations: int = 0
     seconds: float = 0.0
+    capped_frames: int = 0
     chunks: int = 0
+    cut_short_chunks: int = 0
     stop: str = "running"
     confidence: float = 0.95
 
@@ -448,6 +533,11 @@ class PointResult:
                                   self.confidence)
 
     @property
+    def reproducible(self) -> bool:
+        """Counts fixed by the seed and the rule: not ended by the time budget."""
+        return self.stop != "time_budget" and self.cut_short_chunks == 0
+
+    @property
     def avg_iterations(self) -> float:
         return self.iterations / self.frames if self.frames else float("nan")
 
@@ -477,7 +567,10 @@ class PointResult:
             "undetected_errors": self.undetected_errors,
             "decoder_seconds": self.seconds,
             "seconds_per_frame": num(self.seconds / self.frames if self.frames else float("nan")),
+            "capped_frames": self.capped_frames,
             "chunks": self.chunks,
+            "cut_short_chunks": self.cut_short_chunks,
+            "reproducible": self.reproducible,
             "stop": self.stop,
             "confidence": self.confidence,
         }
@@ -514,7 +607,7 @@ class SweepResult:
                   "esn0_db", "frames", "bit_errors", "frame_errors", "ber", "ber_ci_lo",
                   "ber_ci_hi", "fer", "fer_ci_lo", "fer_ci_hi", "avg_iterations",
                   "undetected_errors", "codeword_bit_errors", "codeword_ber", "decoder_seconds",
-                  "stop")
+                  "capped_frames", "cut_short_chunks", "stop")
 
     def write_csv(self, path) -> None:
         with open(path, "w", encoding="utf-8", newline="") as fh:
@@ -535,15 +628,23 @@ class SweepResult:
         conf = f"BER {100 * self.settings.get('confidence', 0.95):g}%-CI"
         head = (f"{'decoder':{w}s} {label[self.channel['snr_kind']]:>9s} {'frames':>10s} "
                 f"{'fr.err':>7s} {'FER':>9s} {'BER':>9s} {conf:>21s} {'iter':>6s} "
-                f"{'ms/fr':>7s} stop")
+                f"{'ms/fr':>7s} {'capped':>6s} stop")
         lines = [head, "-" * len(head)]
         for p in self.points:
             lo, hi = p.ber_ci
             ms = 1e3 * p.seconds / p.frames if p.frames else float("nan")
+            stop = p.stop + (f" ({p.cut_short_chunks} chunk cut short)"
+                             if p.cut_short_chunks else "")
             lines.append(
                 f"{p.decoder:{w}s} {p.snr:9.4g} {p.frames:10d} {p.frame_errors:7d} "
                 f"{p.fer:9.3e} {p.ber:9.3e} [{lo:9.2e},{hi:9.2e}] {p.avg_iterations:6.2f} "
-                f"{ms:7.3f} {p.stop}")
+                f"{ms:7.3f} {p.capped_frames:6d} {stop}")
+        if any(not p.reproducible for p in self.points):
+            lines.append("(time_budget: counts depend on machine speed and load and are not "
+                         "reproducible; a chunk cut short is stored but never reused)")
+        if any(p.capped_frames for p in self.points):
+            lines.append("(capped: frames where the decoder hit its per-frame cap, time_limit "
+                         "or max_iter; with a time cap they depend on machine speed)")
         if self.skipped:
             pts = ", ".join(f"{s:g}" for s in self.skipped)
             lines.append(f"(skipped after the FER floor: {pts})")

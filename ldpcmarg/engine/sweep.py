@@ -29,7 +29,7 @@ import hashlib
 import json
 import math
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -92,9 +92,11 @@ class DecoderState:
         Known chunk counts (stored or finished, counted or not).
     inflight : set of int
         Chunk indices submitted and not yet recorded.
+    cut_short : int
+        Chunks the time budget ended early (counted here, never reused from the store).
     """
 
-    __slots__ = ("spec", "totals", "next", "done", "stop", "chunks", "inflight")
+    __slots__ = ("spec", "totals", "next", "done", "stop", "chunks", "inflight", "cut_short")
 
     def __init__(self, spec: str = ""):
         self.spec = spec
@@ -105,6 +107,7 @@ class DecoderState:
         self.stop = "running"
         self.chunks: dict[int, tuple] = {}
         self.inflight: set[int] = set()
+        self.cut_short = 0  # counted chunks the time budget ended early
 
     @property
     def frames(self) -> int:
@@ -191,6 +194,8 @@ class PointState:
         self.decs = {d: DecoderState(d) for d in decoders}
         self.started: float | None = None
         self.handles: set = set()
+        #: counts so far of chunks still being decoded: chunk index -> {spec: counts}
+        self.partial: dict[int, dict] = {}
 
     @property
     def done(self) -> bool:
@@ -235,7 +240,8 @@ class PointState:
         return floor is not None and all(
             ds.frame_errors < floor * ds.frames for ds in self.decs.values())
 
-    def progress_info(self, rule, snr_kind: str, k: int, now: float | None = None) -> dict:
+    def progress_info(self, rule, snr_kind: str, k: int, now: float | None = None,
+                      reused_chunks: int = 0) -> dict:
         """Live figures of the point for progress displays.
 
         Returns
@@ -243,22 +249,31 @@ class PointState:
         dict
             ``snr``, ``snr_kind``, ``index``, ``decoders`` (one dict each:
             ``decoder``, ``frames``, ``frame_errors``, ``fer``, ``ber``,
-            ``done``, ``stop``), ``fraction`` (share of the slowest decoder's
-            rule reached), ``elapsed`` and ``eta`` in seconds (``eta`` None
-            when unknown) and ``done``.
+            ``done``, ``stop``, ``ms_per_frame``), ``fraction`` (share of the
+            slowest decoder's rule reached), ``elapsed`` and ``eta`` in seconds
+            (``eta`` None when unknown), ``done`` and ``reused_chunks`` (chunks
+            of the whole sweep taken from the store). Frames of chunks still
+            being decoded are included in the figures (not yet counted).
         """
         decs = []
         frac = 1.0
         for ds in self.decs.values():
-            t = ds.totals
+            t = list(ds.totals)
+            if not ds.done:
+                for c, part in self.partial.items():
+                    if c >= ds.next and ds.spec in part:
+                        for j, v in enumerate(part[ds.spec]):
+                            t[j] += v
             frames, fe = t[_F["frames"]], t[_F["frame_errors"]]
             decs.append({"decoder": ds.spec, "frames": frames, "frame_errors": fe,
                          "fer": fe / frames if frames else float("nan"),
                          "ber": t[_F["info_bit_errors"]] / (frames * k) if frames
                          else float("nan"),
-                         "done": ds.done, "stop": ds.stop})
+                         "done": ds.done, "stop": ds.stop,
+                         "ms_per_frame": 1e3 * t[_F["seconds"]] / frames if frames
+                         else float("nan")})
             if not ds.done:
-                frac = min(frac, ds.progress_fraction(rule))
+                frac = min(frac, max(fe / rule.frame_errors, frames / rule.max_frames))
         now = time.perf_counter() if now is None else now
         elapsed = now - self.started if self.started else 0.0
         eta = elapsed * (1 - frac) / frac if 0 < frac < 1 else (0.0 if frac >= 1 else None)
@@ -266,7 +281,8 @@ class PointState:
             rest = max(rule.time_budget - elapsed, 0.0)
             eta = rest if eta is None else min(eta, rest)
         return {"snr": self.snr, "snr_kind": snr_kind, "index": self.index, "decoders": decs,
-                "fraction": frac, "elapsed": elapsed, "eta": eta, "done": self.done}
+                "fraction": frac, "elapsed": elapsed, "eta": eta, "done": self.done,
+                "reused_chunks": reused_chunks}
 
 
 # ---------------------------------------------------------------- the sweep
@@ -435,7 +451,23 @@ class Sweep:
     # ------------------------------------------------------------ the loop
     def _emit(self, ps: PointState) -> None:
         if self._progress is not None:
-            self._progress(ps.progress_info(self.rule, self.snr_kind, self.k))
+            self._progress(ps.progress_info(self.rule, self.snr_kind, self.k,
+                                            reused_chunks=self.reused_chunks))
+
+    def on_sub_batch(self, task, counts: dict) -> None:
+        """Counts so far of a chunk still being decoded (progress within a long chunk)."""
+        for ps in self.points:
+            if ps.key == task.point_key:
+                ps.partial[task.chunk_index] = counts
+                self._emit(ps)
+                return
+
+    def deadline_for(self, ps: PointState) -> float | None:
+        """Wall-clock deadline (``time.time()``) of the point's time budget, or None."""
+        if self.rule.time_budget is None or ps.started is None:
+            return None
+        spent = time.perf_counter() - ps.started
+        return time.time() + self.rule.time_budget - spent
 
     def next_task(self):
         """The next (point, task) to submit, or (None, None)."""
@@ -457,6 +489,8 @@ class Sweep:
             if ps.started is None:
                 ps.started = time.perf_counter()
                 self._emit(ps)
+            if self.rule.time_budget is not None:
+                task = replace(task, deadline=self.deadline_for(ps))
             h = ex.submit(task)
             self._inflight[h] = (ps, task)
             ps.handles.add(h)
@@ -467,6 +501,7 @@ class Sweep:
         """Store a finished chunk, count it where it extends a prefix, report progress."""
         ps, task = self._inflight.pop(handle)
         ps.handles.discard(handle)
+        ps.partial.pop(task.chunk_index, None)
         res = self._executor.result(handle)
         timing = self.timing
         t0 = time.perf_counter()
@@ -479,7 +514,12 @@ class Sweep:
         for spec, counts in res.counts.items():
             ds = ps.decs[spec]
             ds.add(task.chunk_index, counts)
+            before = ds.next
             ds.advance(self.rule)
+            if res.cut_short and before <= task.chunk_index < ds.next:
+                ds.cut_short += 1
+            if res.cut_short:
+                ds.stop_now("time_budget")
         self._emit(ps)
 
     def run(self, executor=None, progress=None, workers: int | None = 1):
@@ -498,8 +538,8 @@ class Sweep:
         -------
         SweepResult
         """
-        from .executors import make_executor
-        from .simulate import run_chunk
+        from . import simulate as sim
+        from .executors import InlineExecutor, make_executor
 
         if self.store is None:
             self.attach(None)
@@ -509,8 +549,11 @@ class Sweep:
         inflight = self._inflight
         t_run = time.perf_counter()
         interrupted = False
+        old_hook = sim.SUB_BATCH_HOOK
+        if isinstance(executor, InlineExecutor) and progress is not None:
+            sim.SUB_BATCH_HOOK = self.on_sub_batch  # chunks run in this process
         try:
-            executor.start(run_chunk, self.context)
+            executor.start(sim.run_chunk, self.context)
             while True:
                 self.update_floor()
                 self.apply_time_budget(time.perf_counter())
@@ -531,6 +574,7 @@ class Sweep:
             interrupted = True
             raise
         finally:
+            sim.SUB_BATCH_HOOK = old_hook
             # keep every chunk that finished, then stop the workers
             if inflight:
                 try:
@@ -564,7 +608,7 @@ class Sweep:
                 results.append(PointResult.from_counts(
                     tuple(ds.totals), decoder=spec, snr_kind=self.snr_kind, snr=ps.snr,
                     rate=code.rate, n=code.n, k=self.k, chunks=ds.next, stop=ds.stop,
-                    confidence=self.confidence))
+                    cut_short_chunks=ds.cut_short, confidence=self.confidence))
                 self.store.save_result(ps.pid, spec, tuple(ds.totals), ds.next, ds.stop,
                                        rule.to_dict())
         channel = {"kind": self.settings["channel"], "snr_kind": self.snr_kind,
