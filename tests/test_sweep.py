@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import time
+
 import pytest
 
 from ldpcmarg.engine.executors import Executor
@@ -152,3 +154,63 @@ def test_sweep_object_matches_simulate_whatever_the_finishing_order(hamming74):
            for p in ref.points]
     assert key == [(p.decoder, p.snr, p.frames, p.frame_errors, p.bit_errors, p.iterations,
                     p.chunks) for p in out.points]
+
+
+# ------------------------------------------------------------------ sub-batches and deadlines
+def test_next_sub_batch_sizes():
+    from ldpcmarg.engine.simulate import SUB_BATCH_SECONDS, _next_sub_batch
+
+    assert _next_sub_batch(0, 500, 0.0, 0.0, None) == 1  # nothing measured yet
+    assert _next_sub_batch(3, 500, 1e-6, 1e-6, None) == 3  # at most doubles what is done
+    per = SUB_BATCH_SECONDS / 10
+    assert _next_sub_batch(400, 500, per, per, None) == 10  # about SUB_BATCH_SECONDS
+    assert _next_sub_batch(499, 500, 1e-6, 1e-6, None) == 1  # never past the chunk
+    # a deadline 1 s away with a 0.3 s per-frame cap: three frames fit
+    assert _next_sub_batch(100, 500, 1e-6, 1e-6, time.time() + 1.0, 0.3) == 3
+    assert _next_sub_batch(100, 500, 1e-6, 1e-6, time.time() - 5.0, 0.3) == 1
+
+
+@pytest.mark.parametrize("snr_kind,snr", [("ebn0_db", 2.0), ("p", 0.04)])
+def test_sub_batches_do_not_change_counts(monkeypatch, snr_kind, snr):
+    # counts are sums over frames and decoders decode frames independently, so any
+    # split of a chunk into sub-batches must give the counts of the whole chunk
+    from ldpcmarg.code.construct import random_regular
+    from ldpcmarg.engine import simulate as sim
+
+    code = random_regular(96, 3, 6, seed=4)
+    decs = ["sum-product", "min-sum:alpha=0.8", "layered-sum-product", "bit-flipping",
+            "hard-decision"]
+    sweep = Sweep(code, decs, [snr], snr_kind=snr_kind, seed=3, chunk_frames=200)
+    task = sim.ChunkTask(sim.point_key(snr), snr, 0, 200, tuple(range(len(decs))))
+    seconds = COUNT_FIELDS.index("seconds")
+
+    def run(sub_batch_seconds):
+        monkeypatch.setattr(sim, "SUB_BATCH_SECONDS", sub_batch_seconds)
+        res = sim.run_chunk(sweep.context, task)
+        assert not res.cut_short
+        return {d: c[:seconds] + c[seconds + 1:] for d, c in res.counts.items()}
+
+    whole = run(1e9)  # one frame, then the rest at once
+    tiny = run(1e-12)  # 1, 1, 2, 4, ... frames
+    assert tiny == whole and whole["sum-product"][F["frames"]] == 200
+
+
+def test_slow_decoder_ends_within_time_budget_plus_one_frame_cap(hamming74):
+    # fw with gap_tol=0 never meets its tolerance, so frames run to the 0.3 s cap;
+    # one 200-frame chunk would take about a minute without the cut inside the chunk
+    cap, budget = 0.3, 1.0
+    slow = f"fw:gap_tol=0,max_iter=1000000,time_limit={cap}"
+    res = simulate(hamming74, [slow, "sum-product"], [1.0], seed=2, chunk_frames=200,
+                   stop=StopRule(frame_errors=10**6, max_frames=10**6, time_budget=budget))
+    # timing bound asked for by the stopping rule itself; 1 s of slack covers the
+    # coordinator's 0.25 s polling, the decoders' warm-up and a loaded machine
+    assert res.timing["wall_seconds"] < budget + cap + 1.0
+    fw, spa = res.points
+    for p in (fw, spa):
+        assert p.stop == "time_budget" and p.cut_short_chunks == 1 and not p.reproducible
+        assert 0 < p.frames < 200
+    assert fw.frames == spa.frames  # the same frames for both decoders
+    assert fw.capped_frames >= 1 and spa.capped_frames == 0
+    doc = res.to_dict()["points"][0]
+    assert doc["capped_frames"] == fw.capped_frames and doc["reproducible"] is False
+    assert "cut short" in res.table() and "not reproducible" in res.table()

@@ -370,16 +370,26 @@ def _batch_counts(res, cw, info, all_info: bool, seconds: float) -> list:
 
 
 def _next_sub_batch(done: int, total: int, per_frame: float, worst_frame: float,
-                    deadline: float | None) -> int:
-    """Frames of the next sub-batch: about ``SUB_BATCH_SECONDS`` of decoding (one frame
-    first, when nothing is measured yet), and with a deadline no more than the slowest
-    frame so far says fit before it (at least one frame)."""
+                    deadline: float | None, frame_cap: float = 0.0) -> int:
+    """Frames of the next sub-batch of a chunk.
+
+    About ``SUB_BATCH_SECONDS`` of decoding at the mean time per frame so far,
+    starting with one frame and at most doubling the frames done (a fast
+    first frame must not commit the worker to a long batch). With a
+    ``deadline`` (``time.time()``) no more frames than fit before it at the
+    slowest observed time per frame or the decoders' per-frame time cap
+    ``frame_cap`` (seconds, summed over the decoders), at least one: so a
+    chunk ends at most one frame's cap after the deadline.
+    """
     left = total - done
+    if left <= 0:
+        return 0
     if done == 0 or per_frame <= 0.0:
-        return 1 if left > 0 else 0
-    size = max(1, int(SUB_BATCH_SECONDS / per_frame))
+        return 1
+    size = min(max(1, int(SUB_BATCH_SECONDS / per_frame)), done)
     if deadline is not None:
-        size = min(size, max(1, int((deadline - time.time()) / max(worst_frame, 1e-9))))
+        slowest = max(worst_frame, frame_cap, 1e-9)
+        size = min(size, max(1, int((deadline - time.time()) / slowest)))
     return min(left, size)
 
 
@@ -427,9 +437,13 @@ def run_chunk(ctx: SweepContext, task: ChunkTask) -> ChunkResult:
     all_info = len(info) == n
     totals = {ctx.decoders[i]: [0] * len(COUNT_FIELDS) for i in task.decoders}
     last = len(task.decoders) - 1
+    # the per-frame time caps of the decoders bound how long one more frame can take
+    frame_cap = sum(float((getattr(decs[i], "options", None) or {}).get("time_limit") or 0.0)
+                    for i in task.decoders)
     done, spent, worst, cut = 0, 0.0, 0.0, False
     while done < F:
-        size = _next_sub_batch(done, F, spent / done if done else 0.0, worst, task.deadline)
+        size = _next_sub_batch(done, F, spent / done if done else 0.0, worst, task.deadline,
+                               frame_cap)
         part = slice(done, done + size)
         t_batch = time.perf_counter()
         for j, i in enumerate(task.decoders):

@@ -560,9 +560,15 @@ class Sweep:
                 self.submit_ready()
                 if not inflight:
                     break
-                wait_for = None if self.rule.time_budget is None else 0.25
-                for h in executor.wait(list(inflight), wait_for):
+                wait_for = 0.25 if self.rule.time_budget is not None else (
+                    1.0 if progress is not None else None)
+                finished = executor.wait(list(inflight), wait_for)
+                for h in finished:
                     self.record(h)
+                if not finished and progress is not None:
+                    # nothing finished: refresh elapsed time and ETA of the running points
+                    for ps in {id(p): p for p, _ in inflight.values()}.values():
+                        self._emit(ps)
             # drop queued speculative chunks; keep (store) those already running
             running = set(executor.cancel(list(inflight)))
             for h in [h for h in inflight if h not in running]:
