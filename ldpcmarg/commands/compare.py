@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import time
 from pathlib import Path
 
 import click
@@ -10,6 +11,7 @@ import click
 from ..errors import InputError
 from ._outputs import Outputs
 from .posteriors import load_code_arg
+from .simulate import _dur
 
 
 def parse_points(text: str, what: str) -> list[float]:
@@ -76,9 +78,21 @@ def command(code, decoders, ebn0, esn0, sigma, bsc, bec, frames, seed, reference
     outputs.check()
     the_code = load_code_arg(code)
 
+    steps = len(points) * len(decoders)
+    clock = {"start": None, "step": 0}
+
     def progress(snr, label):
-        if not quiet:
-            click.echo(f"  {unit} = {snr:g}: {label}", err=True)
+        # called before each (point, decoder) run: the steps before it are done
+        now = time.perf_counter()
+        if clock["start"] is None:
+            clock["start"] = now
+        done = clock["step"]
+        clock["step"] += 1
+        if quiet:
+            return
+        eta = "ETA ?" if done == 0 else \
+            f"ETA {_dur((now - clock['start']) / done * (steps - done))}"
+        click.echo(f"  {unit} = {snr:g}: {label} ({done + 1}/{steps}, {eta})", err=True)
 
     res = compare_decoders(the_code, list(decoders), snr=points, snr_unit=unit, frames=frames,
                            seed=seed, reference=reference, num_bins=bins, binning=binning,

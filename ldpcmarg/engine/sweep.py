@@ -552,6 +552,10 @@ class Sweep:
         old_hook = sim.SUB_BATCH_HOOK
         if isinstance(executor, InlineExecutor) and progress is not None:
             sim.SUB_BATCH_HOOK = self.on_sub_batch  # chunks run in this process
+        if progress is not None and self.reused_chunks:
+            for ps in self.points:  # what the store already holds
+                if ps.done:
+                    self._emit(ps)
         try:
             executor.start(sim.run_chunk, self.context)
             while True:
