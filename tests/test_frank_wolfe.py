@@ -135,7 +135,7 @@ def test_ml_oracle_on_tree_matches_exact():
     lam = np.random.default_rng(7).normal(0.5, 1.5, code.n)
     p1, _ = brute_force(code, lam)
     dec = lm.make_decoder("fw", code, oracle="ml", variant="away", warm_start="uniform",
-                          gap_tol=1e-14, max_iter=1500)
+                          gap_tol=1e-14, max_iter=1500, time_limit=300)
     res = dec.decode(lam)
     assert np.max(np.abs(res.posterior_p1[0] - p1)) < 1e-6
 

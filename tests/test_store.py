@@ -22,7 +22,7 @@ def _other_code():
 
 
 def _counts(frames=10, fe=2):
-    return (frames, 5, 9, 3, 5, fe, 0, 20, 0.01)
+    return (frames, 5, 9, 3, 5, fe, 0, 20, 0.01, 1)
 
 
 def test_roundtrip_and_reuse(tmp_path, hamming74):
@@ -114,5 +114,23 @@ def test_memory_store(hamming74):
     pid = st.point_id(run, 3, 2.0)
     st.add_chunk(pid, 4, {"a": _counts(), "b": _counts(fe=1)})
     assert sorted((c.decoder, c.chunk_index) for c in st.chunks(pid)) == [("a", 4), ("b", 4)]
-    assert np.isclose(st.chunks(pid)[0].counts[-1], 0.01)
+    assert np.isclose(st.chunks(pid)[0].counts[COUNT_FIELDS.index("seconds")], 0.01)
     st.close()
+
+
+def test_store_written_before_capped_frames_is_read_and_upgraded(tmp_path, hamming74):
+    # a store made before the capped_frames column existed (emulated by dropping it)
+    path = tmp_path / "old.sqlite"
+    with Store.open_writer(path, hamming74) as st:
+        run, _ = st.run_for({"seed": 1}, ["sum-product"], {})
+        pid = st.point_id(run, 1, 0.0)
+        st.add_chunk(pid, 0, {"sum-product": _counts()})
+        st.save_result(pid, "sum-product", _counts(), 1, "max_frames", {})
+    with sqlite3.connect(path) as conn:
+        for table in ("chunks", "results"):
+            conn.execute(f"ALTER TABLE {table} DROP COLUMN capped_frames")
+    with Store.open_reader(path) as st:
+        assert st.chunks(pid)[0].counts[-1] == 0 and st.results()[0]["capped_frames"] == 0
+    with Store.open_writer(path, hamming74) as st:
+        st.add_chunk(pid, 1, {"sum-product": _counts()})
+        assert [c.counts[-1] for c in st.chunks(pid)] == [0, 1]

@@ -3,12 +3,15 @@
 from __future__ import annotations
 
 import json
+import time
 from pathlib import Path
 
 import click
 
 from ..errors import InputError
+from ._outputs import Outputs
 from .posteriors import load_code_arg
+from .simulate import _dur
 
 
 def parse_points(text: str, what: str) -> list[float]:
@@ -67,17 +70,29 @@ def command(code, decoders, ebn0, esn0, sigma, bsc, bec, frames, seed, reference
         raise InputError("Give exactly one of --ebn0, --esn0, --sigma, --bsc or --bec.")
     (unit, text), = given.items()
     points = parse_points(text, {"p": "bsc", "epsilon": "bec"}.get(unit, unit))
-    if json_path and json_path != "-" and Path(json_path).exists() and not force:
-        raise InputError(f"Output file {json_path} exists; pass --force to overwrite.")
-    if plot_dir and not force:
-        old = sorted(Path(plot_dir).glob("compare_*.png"))
-        if old:
-            raise InputError(f"Figure {old[0]} exists; pass --force to overwrite.")
+    outputs = Outputs(force)
+    outputs.protect_if_file(code, f"the code file {code}")
+    if json_path != "-":
+        outputs.add(json_path, "--json")
+    outputs.add_dir(plot_dir, "--plots", "compare_*.png")
+    outputs.check()
     the_code = load_code_arg(code)
 
+    steps = len(points) * len(decoders)
+    clock = {"start": None, "step": 0}
+
     def progress(snr, label):
-        if not quiet:
-            click.echo(f"  {unit} = {snr:g}: {label}", err=True)
+        # called before each (point, decoder) run: the steps before it are done
+        now = time.perf_counter()
+        if clock["start"] is None:
+            clock["start"] = now
+        done = clock["step"]
+        clock["step"] += 1
+        if quiet:
+            return
+        eta = "ETA ?" if done == 0 else \
+            f"ETA {_dur((now - clock['start']) / done * (steps - done))}"
+        click.echo(f"  {unit} = {snr:g}: {label} ({done + 1}/{steps}, {eta})", err=True)
 
     res = compare_decoders(the_code, list(decoders), snr=points, snr_unit=unit, frames=frames,
                            seed=seed, reference=reference, num_bins=bins, binning=binning,
@@ -87,7 +102,6 @@ def command(code, decoders, ebn0, esn0, sigma, bsc, bec, frames, seed, reference
     else:
         click.echo(res.format_table())
         if json_path:
-            Path(json_path).parent.mkdir(parents=True, exist_ok=True)
             Path(json_path).write_text(json.dumps(res.to_dict(), indent=1, allow_nan=False))
             click.echo(f"wrote {json_path}")
     if plot_dir:

@@ -11,6 +11,7 @@ import time
 import click
 
 from ..errors import InputError
+from ._outputs import Outputs
 
 GRID_HELP = ("a,b,c or start:step:stop (stop included when it lies on the grid; "
              "forms can be mixed: 0:0.5:2,2.25)")
@@ -24,47 +25,122 @@ def _load_code(name_or_path):
     return load_code(name_or_path)
 
 
-class _Progress:
-    """One status line per point on stderr: frames, errors, live FER/BER and an ETA."""
+#: Width of progress lines when the terminal's size is unknown (and the most ever used).
+PROGRESS_WIDTH = 80
 
-    def __init__(self, enabled: bool):
+
+def _snr_label(info: dict) -> str:
+    return {"ebn0_db": "Eb/N0 {:g}dB", "esn0_db": "Es/N0 {:g}dB", "p": "p {:g}",
+            "epsilon": "eps {:g}"}[info["snr_kind"]].format(info["snr"])
+
+
+def progress_lines(info: dict, width: int = PROGRESS_WIDTH) -> list[str]:
+    """Compact progress lines of one point, one per decoder, each at most ``width`` columns.
+
+    Frames, frame errors, FER and the ETA are always kept; BER and ms per frame
+    (decoding only, compilation excluded) are shown when they fit, and a long
+    decoder name is shortened first.
+    """
+    width = max(int(width), 40)
+    label = _snr_label(info)
+    eta = info["eta"]
+    eta_txt = "done" if info["done"] else ("ETA ?" if eta is None else f"ETA {_dur(eta)}")
+    names = [d["decoder"] for d in info["decoders"]]
+    name_w = min(max(len(n) for n in names), 24)
+    lines = []
+    for d in info["decoders"]:
+        fr = d["frames"]
+        fer = "-" if fr == 0 else f"{d['fer']:.2e}"
+        ber = "-" if fr == 0 else f"{d['ber']:.2e}"
+        ms = d.get("ms_per_frame", float("nan"))
+        state = eta_txt if not d["done"] else f"{d['stop']}"
+        core = f"{fr}fr {d['frame_errors']}err FER {fer}"
+        extras = [f"BER {ber}", f"{ms:.3g}ms/fr" if fr and math.isfinite(ms) else ""]
+        extras = [e for e in extras if e]
+        while True:
+            name = d["decoder"]
+            head = f"{label} "
+            body = " ".join([core, *extras, state])
+            room = width - len(head) - len(body) - 1
+            if room >= min(name_w, len(name)) or not extras:
+                if room < len(name):
+                    name = name[:max(room - 1, 1)] + "~" if room > 1 else name[:1]
+                line = f"{head}{name:{min(name_w, max(room, 1))}s} {body}"
+                break
+            extras.pop()
+        lines.append(line[:width])
+    return lines
+
+
+class _Progress:
+    """Progress on stderr: compact lines per point and decoder, SNR order in logs.
+
+    On a terminal the lines of the running point are redrawn in place (at most
+    the terminal's width, 80 columns when unknown); otherwise one block per
+    finished point, printed in grid order. A sweep that continues a store
+    first prints how many chunks it reused.
+    """
+
+    def __init__(self, enabled: bool, stream=None):
         self.enabled = enabled
-        self.tty = sys.stderr.isatty()
+        self.stream = stream if stream is not None else sys.stderr
+        self.tty = bool(getattr(self.stream, "isatty", lambda: False)())
         self.last = 0.0
         self.finished: set = set()
+        self.drawn = 0  # lines of the running point on screen (terminal)
+        self.drawn_index = None
+        self.resume_said = False
+        self.pending: dict[int, list[str]] = {}
+        self.next_index = 0
+
+    def _out(self, text: str, nl: bool = True) -> None:
+        click.echo(text, file=self.stream, nl=nl)
 
     def __call__(self, info: dict):
         if not self.enabled:
             return
+        if not self.resume_said:
+            self.resume_said = True
+            if info.get("reused_chunks"):
+                self._out(f"resuming: {info['reused_chunks']} chunks reused")
         if info["done"]:
             if info["index"] in self.finished:
                 return
             self.finished.add(info["index"])
+        if self.tty:
+            self._draw(info)
+        elif info["done"]:
+            self.pending[info["index"]] = progress_lines(info, PROGRESS_WIDTH)
+            while self.next_index in self.pending:
+                for line in self.pending.pop(self.next_index):
+                    self._out(line)
+                self.next_index += 1
+
+    def _draw(self, info: dict) -> None:
         now = time.monotonic()
-        if self.tty and not info["done"] and now - self.last < 0.2:
+        if not info["done"] and now - self.last < 0.2 and info["index"] == self.drawn_index:
             return
         self.last = now
-        if not self.tty and not info["done"]:
-            return  # in logs: one line per finished point
-        label = {"ebn0_db": "Eb/N0 {:g} dB", "esn0_db": "Es/N0 {:g} dB", "p": "p {:g}",
-                 "epsilon": "eps {:g}"}[info["snr_kind"]].format(info["snr"])
-        parts = []
-        for d in info["decoders"]:
-            name = d["decoder"].split(":")[0]
-            fer = "-" if d["frames"] == 0 else f"{d['fer']:.2e}"
-            ber = "-" if d["frames"] == 0 else f"{d['ber']:.2e}"
-            parts.append(f"{name} {d['frames']} fr {d['frame_errors']} err FER {fer} BER {ber}")
-        eta = info["eta"]
-        eta_txt = "done" if info["done"] else ("ETA ?" if eta is None else f"ETA {_dur(eta)}")
-        bar_w = 20
-        filled = int(round(bar_w * min(max(info["fraction"], 0.0), 1.0)))
-        bar = "#" * filled + "." * (bar_w - filled)
-        line = f"{label:>16s} [{bar}] " + " | ".join(parts) + f" | {eta_txt}"
-        if self.tty:
-            width = max(40, _term_width() - 1)
-            click.echo("\r" + line[:width].ljust(width), err=True, nl=info["done"])
+        lines = progress_lines(info, min(_term_width(), PROGRESS_WIDTH) - 1)
+        if self.drawn and self.drawn_index == info["index"]:
+            up = self.drawn - 1  # back to the first line of this point's block
+            self._out(f"\x1b[{up}F" if up else "\r", nl=False)
+        elif self.drawn:
+            self._out("")  # keep the previous point's block as it stands
+        self._out("\n".join(ln + "\x1b[K" for ln in lines), nl=info["done"])
+        if info["done"]:
+            self.drawn, self.drawn_index = 0, None
         else:
-            click.echo(line, err=True)
+            self.drawn, self.drawn_index = len(lines), info["index"]
+
+    def close(self) -> None:
+        """Print what is still buffered (points left running or skipped), in grid order."""
+        for index in sorted(self.pending):
+            for line in self.pending.pop(index):
+                self._out(line)
+        if self.tty and self.drawn:
+            self._out("")
+            self.drawn, self.drawn_index = 0, None
 
 
 def _dur(s: float) -> str:
@@ -79,10 +155,12 @@ def _dur(s: float) -> str:
 
 
 def _term_width() -> int:
+    """Columns of the terminal on stderr; 80 when unknown (or reported as 0)."""
     try:
-        return os.get_terminal_size(sys.stderr.fileno()).columns
-    except OSError:
-        return 120
+        cols = os.get_terminal_size(sys.stderr.fileno()).columns
+    except (OSError, ValueError):
+        return PROGRESS_WIDTH
+    return cols if cols > 0 else PROGRESS_WIDTH
 
 
 def _terminate(signum, frame):
@@ -145,10 +223,13 @@ def _positive(name):
               help="Write the curve as CSV.")
 @click.option("--plot", "plot_path", type=click.Path(dir_okay=False), default=None,
               help="Write a BER/FER figure (.png, .svg or .pdf).")
+@click.option("--force", is_flag=True,
+              help="Overwrite existing --json, --csv and --plot files.")
 @click.option("-q", "--quiet", is_flag=True, help="No progress lines.")
 def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_frames,
             time_budget, fer_floor, seed, workers, cluster, cluster_timeout, chunk_frames,
-            random_codewords, confidence, store_path, json_path, csv_path, plot_path, quiet):
+            random_codewords, confidence, store_path, json_path, csv_path, plot_path, force,
+            quiet):
     """Simulate BER and FER of CODE (a shipped name or a matrix file) over an SNR grid.
 
     \b
@@ -190,15 +271,17 @@ def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_f
         grid = parse_grid(param_grid, "--param")
     stop = StopRule(frame_errors=frame_errors, max_frames=max_frames, time_budget=time_budget,
                     fer_floor=fer_floor)
-    for path, what in ((json_path, "--json"), (csv_path, "--csv"), (plot_path, "--plot")):
-        if path is not None:
-            parent = os.path.dirname(os.path.abspath(path))
-            if not os.path.isdir(parent):
-                raise InputError(f"{what}: directory {parent!r} does not exist.")
     if plot_path is not None:
         from ..plots.curves import check_figure_path
 
         check_figure_path(plot_path)
+    outputs = Outputs(force)
+    outputs.protect(store_path, f"the store --store {store_path}", store=True)
+    outputs.protect_if_file(code, f"the code file {code}")
+    outputs.add(json_path, "--json")
+    outputs.add(csv_path, "--csv")
+    outputs.add(plot_path, "--plot")
+    outputs.check()
     code_obj = _load_code(code)
     # decoders and SNR values are checked by simulate() before it writes anything;
     # check them here too so that a bad spec never opens the store
@@ -221,11 +304,11 @@ def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_f
             raise InputError(f"--cluster-timeout must be > 0; got {cluster_timeout}.")
         executor = DaskExecutor(cluster, connect_timeout=cluster_timeout)
     store = None
+    progress = _Progress(not quiet)
     old_term = signal.signal(signal.SIGTERM, _terminate)  # SIGTERM stops as cleanly as Ctrl-C
     try:
         if store_path is not None:
             store = Store.open_writer(store_path, code_obj)
-        progress = _Progress(not quiet)
         res = simulate(code_obj, list(decoders), grid, snr_kind=snr_kind, seed=seed, stop=stop,
                        chunk_frames=chunk_frames, random_codewords=random_codewords,
                        workers=workers, executor=executor, store=store, progress=progress,
@@ -236,6 +319,7 @@ def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_f
                        "command again to continue.", err=True)
         raise
     finally:
+        progress.close()
         signal.signal(signal.SIGTERM, old_term)
         if store is not None:
             store.close()

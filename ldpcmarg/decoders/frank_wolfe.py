@@ -98,6 +98,9 @@ __all__ = [
 
 #: Floor inside logarithms and reciprocals: keeps gradients finite (|ln| <= 690)
 #: when a coordinate underflows to 0 (e.g. LLRs of 1e4). Never produces NaN.
+#: Default wall-clock cap per frame (seconds) of the fw decoder: a frame where the
+#: solver does not reach its tolerance must not hold a sweep for ever.
+DEFAULT_FW_TIME_LIMIT = 5.0
 _TINY = 1e-300
 
 #: A vanilla or contracted full step stops this short of the vertex, so the
@@ -951,9 +954,11 @@ class FrankWolfeDecoder(Decoder):
     abs_gap_tol : float
         Absolute gap tolerance (0: off).
     max_iter : int
-        Oracle calls per frame.
-    time_limit : float or None
-        Seconds per frame, warm start included (None: no cap).
+        Oracle calls per frame (default 1000).
+    time_limit : float
+        Seconds per frame, warm start included (default
+        :data:`DEFAULT_FW_TIME_LIMIT` = 5 s, so that a frame where the solver
+        crawls cannot hold a sweep for ever).
     eps0, eps_min : float
         Start and floor of the contraction (variant "contracted"); from a warm
         start the contraction starts at ``min(eps0, 1e-3)``.
@@ -993,7 +998,9 @@ class FrankWolfeDecoder(Decoder):
         Oracle calls.
     info : dict
         ``duality_gap``, ``relative_gap``, ``free_energy`` (F,) float64;
-        ``status`` (F,) str (see :class:`FWFrameResult`); ``convex`` (F,) bool;
+        ``status`` (F,) str (see :class:`FWFrameResult`); ``capped`` (F,) bool
+        (the frame stopped on ``time_limit``, default
+        :data:`DEFAULT_FW_TIME_LIMIT` s, or ``max_iter``); ``convex`` (F,) bool;
         ``oracle_calls`` (F,), ``oracle_seconds``, ``seconds`` (F,);
         ``certified_gap`` (F,) float64 when a certificate is on (``>= F - F*``
         for convex F); ``log_partition_bound`` (F,) float64 only with
@@ -1015,8 +1022,10 @@ class FrankWolfeDecoder(Decoder):
                          doc="relative duality-gap tolerance gap / max(1, |F|)"),
         "abs_gap_tol": Param("float", 0.0, low=0.0, doc="absolute duality-gap tolerance (nats)"),
         "max_iter": Param("int", 1000, low=1, doc="oracle calls per frame"),
-        "time_limit": Param("float", None, low=0.0, low_open=True,
-                            doc="seconds per frame (none: no cap)"),
+        "time_limit": Param("float", DEFAULT_FW_TIME_LIMIT, low=0.0, low_open=True,
+                            doc="seconds per frame, warm start included (none: no cap; a "
+                                "frame that hits it or max_iter is reported in "
+                                "info['capped'])"),
         "eps0": Param("float", 0.1, low=0.0, high=1.0, high_open=True,
                       doc="initial contraction towards the uniform point (variant 'contracted')"),
         "eps_min": Param("float", 0.0, low=0.0, high=1.0, high_open=True,
@@ -1191,6 +1200,8 @@ class FrankWolfeDecoder(Decoder):
                 cert[f] = r.certified_gap
             traces.append(r.trace)
         info["status"] = info["status"].astype(str)
+        # the per-frame caps (time_limit, max_iter) stopped the solver before its tolerance
+        info["capped"] = np.isin(info["status"], ("time_limit", "max_iter"))
         have_cert = bool(np.all(np.isfinite(cert)))
         if have_cert:
             info["certified_gap"] = cert

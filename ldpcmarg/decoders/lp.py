@@ -677,8 +677,16 @@ def cost_scale(llr_row: np.ndarray) -> float:
     return 2.0 ** -math.ceil(math.log2(top / COST_SCALE_MAX))
 
 
-_TIME_LIMIT = Param("float", None, low=0.0, low_open=True,
-                    doc="Seconds allowed per frame (none: no limit).")
+#: Default wall-clock caps per frame (seconds): LP decoding solves one LP per frame
+#: (well under a second at n = 504); an ML MIP can take much longer.
+DEFAULT_LP_TIME_LIMIT = 10.0
+DEFAULT_ML_TIME_LIMIT = 30.0
+_TIME_LIMIT = Param("float", DEFAULT_LP_TIME_LIMIT, low=0.0, low_open=True,
+                    doc="Seconds allowed per frame (none: no limit); a frame that hits it is "
+                        "reported in info['capped'].")
+_ML_TIME_LIMIT = Param("float", DEFAULT_ML_TIME_LIMIT, low=0.0, low_open=True,
+                       doc="Seconds allowed per frame (none: no limit); a frame that hits it "
+                           "is reported in info['capped'].")
 _MAX_DEG = Param("int", DEFAULT_MAX_CHECK_DEGREE, low=1, high=24,
                  doc="Refuse checks of larger degree (2**(d-1) local codewords each).")
 
@@ -736,6 +744,8 @@ class LPDecoder(_LPBackedDecoder):
     info["proved_optimal"] : (F,) bool
         False when the frame hit ``time_limit`` (its outputs are then the
         channel hard decisions and NaN pseudo-codeword, never a stale point).
+    info["capped"] : (F,) bool
+        The frame hit ``time_limit`` (default :data:`DEFAULT_LP_TIME_LIMIT` s).
 
     Each frame is solved cold (dual simplex; measured faster than a hot
     start from the previous frame's basis, see experiments/bench_lp_oracle.py).
@@ -785,7 +795,7 @@ class LPDecoder(_LPBackedDecoder):
         return DecodeResult(bits=bits, posterior_llr=None, iterations=iters, valid=valid,
                             info={"ml_certificate": cert, "pseudo_codeword": tau,
                                   "num_fractional": nfrac, "lp_objective": obj,
-                                  "proved_optimal": proved})
+                                  "proved_optimal": proved, "capped": ~proved})
 
 
 class MLDecoder(_LPBackedDecoder):
@@ -807,13 +817,15 @@ class MLDecoder(_LPBackedDecoder):
     posterior_llr : None
     info["proved_optimal"] : (F,) bool
         False when the frame hit ``time_limit`` before optimality was proved.
+    info["capped"] : (F,) bool
+        The frame hit ``time_limit`` (default :data:`DEFAULT_ML_TIME_LIMIT` s).
     info["ml_objective"] : (F,) float64
         ``sum_i lambda_i x_i`` of the returned word (NaN if none found).
     """
 
     name = "ml"
     description = "Block-ML decoding as a HiGHS MIP (moderate codes)."
-    params = {"time_limit": _TIME_LIMIT,
+    params = {"time_limit": _ML_TIME_LIMIT,
               "max_check_degree": Param("int", DEFAULT_MAX_CHECK_DEGREE, low=1, high=24,
                                         doc="formulation=local only: refuse checks of larger "
                                             "degree."),
@@ -842,4 +854,5 @@ class MLDecoder(_LPBackedDecoder):
         valid = np.asarray(self.code.is_codeword(bits), dtype=bool).reshape(-1)
         return DecodeResult(bits=bits, posterior_llr=None,
                             iterations=np.zeros(F, dtype=np.int64), valid=valid,
-                            info={"proved_optimal": proved, "ml_objective": obj})
+                            info={"proved_optimal": proved, "ml_objective": obj,
+                                  "capped": ~proved})

@@ -56,7 +56,6 @@ BEC) counts as an error whatever word was sent.
 from __future__ import annotations
 
 import csv
-import hashlib
 import json
 import math
 import time
@@ -271,27 +270,60 @@ class SweepContext:
 
 @dataclass(frozen=True)
 class ChunkTask:
-    """One chunk: SNR point, chunk index, frame count and which decoders to run."""
+    """One chunk: SNR point, chunk index, frame count and which decoders to run.
+
+    ``deadline`` (seconds since the epoch, :func:`time.time`) is set when the
+    point has a time budget: the chunk is then cut short at the first
+    sub-batch boundary after it.
+    """
 
     point_key: int
     snr: float
     chunk_index: int
     frames: int
     decoders: tuple
+    deadline: float | None = None
 
 
 @dataclass
 class ChunkResult:
-    """Counts of one chunk, per decoder spec (tuples in ``COUNT_FIELDS`` order)."""
+    """Counts of one chunk, per decoder spec (tuples in ``COUNT_FIELDS`` order).
+
+    ``cut_short`` is True when the time budget ended the chunk early; its
+    counts then cover the first ``counts[...][0]`` frames only.
+    """
 
     task: ChunkTask
     counts: dict
     channel_seconds: float
     total_seconds: float
+    cut_short: bool = False
 
 
 # ---------------------------------------------------------------- the worker side
 _STATE: dict = {}
+
+#: Seconds one sub-batch of a chunk aims at: the granularity of progress reports and of
+#: the time-budget check inside a chunk.
+SUB_BATCH_SECONDS = 1.0
+
+#: Called after every sub-batch of a chunk as ``hook(task, counts)`` (counts so far, per
+#: decoder spec) in the process that decodes it; the sweep sets it for in-process runs
+#: and worker processes set it to report to the coordinator.
+SUB_BATCH_HOOK = None
+
+
+def _warm_up(decs, n: int) -> None:
+    """Decode one easy frame with a copy of each decoder so that numba compiles (or loads
+    its cache) before any frame is timed; copies keep the decoders' own state untouched."""
+    import copy
+
+    llr = np.full((1, n), 8.0)
+    for dec in decs:
+        try:
+            copy.deepcopy(dec).decode(llr.copy())
+        except Exception:  # pragma: no cover - a real problem shows on the first chunk
+            pass
 
 
 def _worker_state(ctx: SweepContext):
@@ -302,6 +334,7 @@ def _worker_state(ctx: SweepContext):
 
         code = ParityCheckCode(ctx.H, name=ctx.code_name, source=ctx.code_source)
         decs = [make_decoder(s, code) for s in ctx.decoders]
+        _warm_up(decs, code.n)
         info = info_positions(code)
         enc = code.encoder if ctx.random_codewords else None
         if len(_STATE) > 4:
@@ -310,8 +343,64 @@ def _worker_state(ctx: SweepContext):
     return st
 
 
+def _batch_counts(res, cw, info, all_info: bool, seconds: float) -> list:
+    """Counts (``COUNT_FIELDS`` order) of one decoded batch; sums over frames, so the
+    counts of consecutive sub-batches add up to those of the whole batch."""
+    F = res.bits.shape[0]
+    err = np.asarray(res.bits, dtype=np.uint8)
+    if cw is not None:
+        err = err ^ cw
+    decided = np.ones(F, dtype=bool)
+    if res.posterior_llr is not None:
+        # An undecided bit (posterior LLR exactly 0, e.g. an unresolved BEC
+        # erasure) is an error whatever word was sent; otherwise the
+        # all-zero word would credit the decoder with every tie it left.
+        ties = res.posterior_llr == 0.0
+        err = err | ties
+        decided = ~ties.any(axis=1)
+    e_all = err.sum(axis=1, dtype=np.int64)
+    e_info = e_all if all_info else err[:, info].sum(axis=1, dtype=np.int64)
+    fe = e_all > 0
+    und = fe & np.asarray(res.valid, dtype=bool) & decided
+    capped = res.info.get("capped") if isinstance(res.info, dict) else None
+    n_capped = 0 if capped is None else int(np.count_nonzero(np.asarray(capped, dtype=bool)))
+    return [F, int(e_all.sum()), int((e_all * e_all).sum()), int(e_info.sum()),
+            int((e_info * e_info).sum()), int(fe.sum()), int(und.sum()),
+            int(np.asarray(res.iterations, dtype=np.int64).sum()), float(seconds), n_capped]
+
+
+def _next_sub_batch(done: int, total: int, per_frame: float, worst_frame: float,
+                    deadline: float | None, frame_cap: float = 0.0) -> int:
+    """Frames of the next sub-batch of a chunk.
+
+    About ``SUB_BATCH_SECONDS`` of decoding at the mean time per frame so far,
+    starting with one frame and at most doubling the frames done (a fast
+    first frame must not commit the worker to a long batch). With a
+    ``deadline`` (``time.time()``) no more frames than fit before it at the
+    slowest observed time per frame or the decoders' per-frame time cap
+    ``frame_cap`` (seconds, summed over the decoders), at least one: so a
+    chunk ends at most one frame's cap after the deadline.
+    """
+    left = total - done
+    if left <= 0:
+        return 0
+    if done == 0 or per_frame <= 0.0:
+        return 1
+    size = min(max(1, int(SUB_BATCH_SECONDS / per_frame)), done)
+    if deadline is not None:
+        slowest = max(worst_frame, frame_cap, 1e-9)
+        size = min(size, max(1, int((deadline - time.time()) / slowest)))
+    return min(left, size)
+
+
 def run_chunk(ctx: SweepContext, task: ChunkTask) -> ChunkResult:
     """Simulate one chunk for the requested decoders (runs on a worker).
+
+    The chunk's frames are drawn at once from its seed and decoded in
+    sub-batches (every decoder decodes each sub-batch), so progress can be
+    reported within a chunk and a ``task.deadline`` can cut it short between
+    sub-batches. Counts are sums over frames, so splitting does not change
+    them (decoders decode frames independently).
 
     Parameters
     ----------
@@ -321,7 +410,8 @@ def run_chunk(ctx: SweepContext, task: ChunkTask) -> ChunkResult:
     Returns
     -------
     ChunkResult
-        Raw counts; the seed makes them a pure function of ``(ctx, task)``.
+        Raw counts; the seed makes them a pure function of ``(ctx, task)``
+        unless the chunk was cut short.
     """
     code, decs, info, enc = _worker_state(ctx)
     t_start = time.perf_counter()
@@ -345,34 +435,40 @@ def run_chunk(ctx: SweepContext, task: ChunkTask) -> ChunkResult:
     llr = np.ascontiguousarray(llr, dtype=np.float64)
     t_channel = time.perf_counter() - t_start
     all_info = len(info) == n
-    counts = {}
+    totals = {ctx.decoders[i]: [0] * len(COUNT_FIELDS) for i in task.decoders}
     last = len(task.decoders) - 1
-    for j, i in enumerate(task.decoders):
-        dec = decs[i]
-        arg = llr if j == last else llr.copy()  # a decoder must not see another's scratch
-        t0 = time.perf_counter()
-        res = dec.decode(arg)
-        sec = time.perf_counter() - t0
-        err = np.asarray(res.bits, dtype=np.uint8)
-        if cw is not None:
-            err = err ^ cw
-        decided = np.ones(F, dtype=bool)
-        if res.posterior_llr is not None:
-            # An undecided bit (posterior LLR exactly 0, e.g. an unresolved BEC
-            # erasure) is an error whatever word was sent; otherwise the
-            # all-zero word would credit the decoder with every tie it left.
-            ties = res.posterior_llr == 0.0
-            err = err | ties
-            decided = ~ties.any(axis=1)
-        e_all = err.sum(axis=1, dtype=np.int64)
-        e_info = e_all if all_info else err[:, info].sum(axis=1, dtype=np.int64)
-        fe = e_all > 0
-        und = fe & np.asarray(res.valid, dtype=bool) & decided
-        counts[ctx.decoders[i]] = (
-            F, int(e_all.sum()), int((e_all * e_all).sum()), int(e_info.sum()),
-            int((e_info * e_info).sum()), int(fe.sum()), int(und.sum()),
-            int(np.asarray(res.iterations, dtype=np.int64).sum()), float(sec))
-    return ChunkResult(task, counts, t_channel, time.perf_counter() - t_start)
+    # the per-frame time caps of the decoders bound how long one more frame can take
+    frame_cap = sum(float((getattr(decs[i], "options", None) or {}).get("time_limit") or 0.0)
+                    for i in task.decoders)
+    done, spent, worst, cut = 0, 0.0, 0.0, False
+    while done < F:
+        size = _next_sub_batch(done, F, spent / done if done else 0.0, worst, task.deadline,
+                               frame_cap)
+        part = slice(done, done + size)
+        t_batch = time.perf_counter()
+        for j, i in enumerate(task.decoders):
+            # a decoder must not see another's scratch
+            arg = np.ascontiguousarray(llr[part]) if j == last else llr[part].copy()
+            t0 = time.perf_counter()
+            res = decs[i].decode(arg)
+            sec = time.perf_counter() - t0
+            row = _batch_counts(res, None if cw is None else cw[part], info, all_info, sec)
+            tot = totals[ctx.decoders[i]]
+            for k, v in enumerate(row):
+                tot[k] += v
+        batch_seconds = time.perf_counter() - t_batch
+        spent += batch_seconds
+        worst = max(worst, batch_seconds / size)
+        done += size
+        hook = SUB_BATCH_HOOK
+        if hook is not None and done < F:
+            hook(task, {d: tuple(t) for d, t in totals.items()})
+        if task.deadline is not None and done < F and time.time() >= task.deadline:
+            cut = True
+            break
+    counts = {d: tuple(float(v) if k == _F["seconds"] else int(v) for k, v in enumerate(t))
+              for d, t in totals.items()}
+    return ChunkResult(task, counts, t_channel, time.perf_counter() - t_start, cut_short=cut)
 
 
 # ---------------------------------------------------------------- results
@@ -395,7 +491,9 @@ class PointResult:
     undetected_errors: int = 0
     iterations: int = 0
     seconds: float = 0.0
+    capped_frames: int = 0
     chunks: int = 0
+    cut_short_chunks: int = 0
     stop: str = "running"
     confidence: float = 0.95
 
@@ -449,6 +547,11 @@ class PointResult:
                                   self.confidence)
 
     @property
+    def reproducible(self) -> bool:
+        """Counts fixed by the seed and the rule: not ended by the time budget."""
+        return self.stop != "time_budget" and self.cut_short_chunks == 0
+
+    @property
     def avg_iterations(self) -> float:
         return self.iterations / self.frames if self.frames else float("nan")
 
@@ -478,7 +581,10 @@ class PointResult:
             "undetected_errors": self.undetected_errors,
             "decoder_seconds": self.seconds,
             "seconds_per_frame": num(self.seconds / self.frames if self.frames else float("nan")),
+            "capped_frames": self.capped_frames,
             "chunks": self.chunks,
+            "cut_short_chunks": self.cut_short_chunks,
+            "reproducible": self.reproducible,
             "stop": self.stop,
             "confidence": self.confidence,
         }
@@ -515,7 +621,7 @@ class SweepResult:
                   "esn0_db", "frames", "bit_errors", "frame_errors", "ber", "ber_ci_lo",
                   "ber_ci_hi", "fer", "fer_ci_lo", "fer_ci_hi", "avg_iterations",
                   "undetected_errors", "codeword_bit_errors", "codeword_ber", "decoder_seconds",
-                  "stop")
+                  "capped_frames", "cut_short_chunks", "stop")
 
     def write_csv(self, path) -> None:
         with open(path, "w", encoding="utf-8", newline="") as fh:
@@ -536,15 +642,23 @@ class SweepResult:
         conf = f"BER {100 * self.settings.get('confidence', 0.95):g}%-CI"
         head = (f"{'decoder':{w}s} {label[self.channel['snr_kind']]:>9s} {'frames':>10s} "
                 f"{'fr.err':>7s} {'FER':>9s} {'BER':>9s} {conf:>21s} {'iter':>6s} "
-                f"{'ms/fr':>7s} stop")
+                f"{'ms/fr':>7s} {'capped':>6s} stop")
         lines = [head, "-" * len(head)]
         for p in self.points:
             lo, hi = p.ber_ci
             ms = 1e3 * p.seconds / p.frames if p.frames else float("nan")
+            stop = p.stop + (f" ({p.cut_short_chunks} chunk cut short)"
+                             if p.cut_short_chunks else "")
             lines.append(
                 f"{p.decoder:{w}s} {p.snr:9.4g} {p.frames:10d} {p.frame_errors:7d} "
                 f"{p.fer:9.3e} {p.ber:9.3e} [{lo:9.2e},{hi:9.2e}] {p.avg_iterations:6.2f} "
-                f"{ms:7.3f} {p.stop}")
+                f"{ms:7.3f} {p.capped_frames:6d} {stop}")
+        if any(not p.reproducible for p in self.points):
+            lines.append("(time_budget: counts depend on machine speed and load and are not "
+                         "reproducible; a chunk cut short is stored but never reused)")
+        if any(p.capped_frames for p in self.points):
+            lines.append("(capped: frames where the decoder hit its per-frame cap, time_limit "
+                         "or max_iter; with a time cap they depend on machine speed)")
         if self.skipped:
             pts = ", ".join(f"{s:g}" for s in self.skipped)
             lines.append(f"(skipped after the FER floor: {pts})")
@@ -552,31 +666,6 @@ class SweepResult:
 
 
 # ---------------------------------------------------------------- the coordinator
-class _DecState:
-    __slots__ = ("totals", "next", "done", "stop", "chunks", "inflight")
-
-    def __init__(self):
-        self.totals = [0] * len(COUNT_FIELDS)
-        self.totals[_F["seconds"]] = 0.0
-        self.next = 0
-        self.done = False
-        self.stop = "running"
-        self.chunks: dict[int, tuple] = {}
-        self.inflight: set[int] = set()
-
-
-class _PointState:
-    def __init__(self, index, snr, key, pid, decoders):
-        self.index, self.snr, self.key, self.pid = index, snr, key, pid
-        self.decs = {d: _DecState() for d in decoders}
-        self.started: float | None = None
-        self.handles: set = set()
-
-    @property
-    def done(self) -> bool:
-        return all(d.done for d in self.decs.values())
-
-
 def _versions() -> dict:
     from importlib import metadata
 
@@ -627,7 +716,8 @@ def simulate(code, decoders, snr, *, snr_kind: str = "ebn0_db", seed: int = 1,
     store : Store, optional
         Results store opened with :meth:`Store.open_writer`; default: in memory.
     progress : callable, optional
-        Called as ``progress(info: dict)`` after every chunk (see ``_progress_info``).
+        Called as ``progress(info: dict)`` after every chunk (see
+        :meth:`ldpcmarg.engine.sweep.PointState.progress_info`).
     confidence : float
         Level of the reported intervals.
     speculate : bool
@@ -659,292 +749,10 @@ def simulate(code, decoders, snr, *, snr_kind: str = "ebn0_db", seed: int = 1,
     >>> p.frame_errors >= 50 and p.ber_ci[0] <= p.ber <= p.ber_ci[1]
     True
     """
-    from ..decoders.base import make_decoder
-    from .executors import make_executor
+    from .sweep import Sweep
 
-    if snr_kind not in SNR_KINDS:
-        raise InputError(f"Unknown SNR kind {snr_kind!r}; accepted: {', '.join(SNR_KINDS)}.")
-    stop = stop or StopRule()
-    if not 0.0 < float(confidence) < 1.0:
-        raise InputError(f"The confidence level must be in (0, 1); got {confidence!r}.")
-    if isinstance(seed, bool) or not isinstance(seed, int | np.integer) or seed < 0:
-        raise InputError(f"The seed must be an integer >= 0; got {seed!r}.")
-    if isinstance(decoders, str):
-        decoders = [decoders]
-    if not decoders:
-        raise InputError("Give at least one decoder.")
-    snr = [float(s) for s in snr]
-    if not snr:
-        raise InputError("Give at least one SNR point.")
-    keys = [point_key(s) for s in snr]
-    if len(set(keys)) != len(keys):
-        raise InputError("The SNR grid repeats a value.")
-    rate = code.rate
-    channels = [_point_channel(SNR_KINDS[snr_kind], snr_kind, s, rate) for s in snr]
-    decs = [make_decoder(d, code) for d in decoders]
-    specs = [d.spec for d in decs]
-    dup = {s for s in specs if specs.count(s) > 1}
-    if dup:
-        raise InputError(f"Decoder {sorted(dup)[0]!r} is given twice.")
-    if chunk_frames is None:
-        chunk_frames = default_chunk_frames(code.n)
-    if isinstance(chunk_frames, bool) or not isinstance(chunk_frames, int | np.integer) \
-            or chunk_frames < 1:
-        raise InputError(f"The chunk size must be an integer >= 1 frames; got {chunk_frames!r}.")
-    chunk_frames = int(chunk_frames)
-    forced = ""
-    if not random_codewords:
-        asym = [d.spec for d in decs if not getattr(d, "symmetric", True)]
-        if asym or not channels[0].symmetric:
-            random_codewords = True
-            forced = ("not symmetric: " + ", ".join(asym)) if asym else "channel not symmetric"
-    if random_codewords and getattr(code, "encoder", None) is None:
-        raise InputError("Random codewords need an encoder for this code (code.encoder).")
-    info = info_positions(code)
-    k = int(len(info))
-
-    settings = {
-        "chunk_scheme": CHUNK_SCHEME,
-        "channel": SNR_KINDS[snr_kind],
-        "snr_kind": snr_kind,
-        "seed": int(seed),
-        "chunk_frames": chunk_frames,
-        "codewords": "random" if random_codewords else "all-zero",
-        "info_positions": hashlib.sha256(info.tobytes()).hexdigest()[:16],
-    }
-    ctx_key = hashlib.sha256(json.dumps(
-        [settings, code.fingerprint, specs], sort_keys=True).encode()).hexdigest()[:16]
-    ctx = SweepContext(H=code.H, code_name=code.name, code_source=code.source, rate=rate,
-                       decoders=tuple(specs), snr_kind=snr_kind, seed=int(seed),
-                       random_codewords=bool(random_codewords), key=ctx_key)
-
-    own_store = store is None
-    if own_store:
-        store = Store.memory(code)
-    run_id, _ = store.run_for(settings, specs, _versions())
-    n_chunks = -(-stop.max_frames // chunk_frames)
-
-    def frames_for(c: int) -> int:
-        return min(chunk_frames, stop.max_frames - c * chunk_frames)
-
-    points = []
-    for i, (s, key) in enumerate(zip(snr, keys, strict=True)):
-        pid = store.point_id(run_id, key, s)
-        ps = _PointState(i, s, key, pid, specs)
-        for row in store.chunks(pid):
-            ds = ps.decs.get(row.decoder)
-            if ds is not None and row.chunk_index < n_chunks \
-                    and row.counts[_F["frames"]] == frames_for(row.chunk_index):
-                ds.chunks[row.chunk_index] = row.counts
-        points.append(ps)
-
-    def advance(ds: _DecState) -> None:
-        tot = ds.totals
-        while not ds.done:
-            if tot[_F["frame_errors"]] >= stop.frame_errors:
-                ds.done, ds.stop = True, "frame_errors"
-                break
-            if tot[_F["frames"]] >= stop.max_frames:
-                ds.done, ds.stop = True, "max_frames"
-                break
-            row = ds.chunks.get(ds.next)
-            if row is None:
-                break
-            for j, v in enumerate(row):
-                tot[j] += v
-            ds.next += 1
-
-    for ps in points:
-        for ds in ps.decs.values():
-            advance(ds)
-
-    def chunk_limit(ds: _DecState) -> int:
-        """Chunks worth computing for this decoder, judged from its error rate so far."""
-        fe = ds.totals[_F["frame_errors"]]
-        if not speculate:
-            return ds.next + 1
-        if fe == 0:  # nothing to extrapolate from: grow the look-ahead geometrically
-            return min(n_chunks, 2 * ds.next + 1)
-        need = stop.frame_errors - fe
-        per_chunk = fe / max(ds.next, 1)
-        return min(n_chunks, ds.next + max(1, math.ceil(1.25 * need / per_chunk)))
-
-    def next_task(ps: _PointState) -> ChunkTask | None:
-        active = [(d, ds) for d, ds in ps.decs.items() if not ds.done]
-        if not active:
-            return None
-        limits = {d: chunk_limit(ds) for d, ds in active}
-        start = min(ds.next for _, ds in active)
-        upper = max(limits.values())
-        for c in range(start, upper):
-            want = tuple(i for i, (d, ds) in enumerate(ps.decs.items())
-                         if not ds.done and c >= ds.next and c < limits[d]
-                         and c not in ds.chunks and c not in ds.inflight)
-            if want:
-                return ChunkTask(ps.key, ps.snr, c, frames_for(c), want)
-        return None
-
-    if executor is None:
-        executor = make_executor(workers)
-    t_run = time.perf_counter()
-    timing = {"store_seconds": 0.0, "channel_seconds": 0.0, "decoder_seconds": 0.0,
-              "worker_seconds": 0.0, "chunks": 0}
-    inflight: dict = {}  # handle -> (point state, task)
-    interrupted = False
-    floor_at: int | None = None
-
-    def point_fer_below_floor(ps: _PointState) -> bool:
-        return stop.fer_floor is not None and all(
-            ds.totals[_F["frame_errors"]] < stop.fer_floor * ds.totals[_F["frames"]]
-            for ds in ps.decs.values())
-
-    def active_points():
-        for ps in points:
-            if floor_at is not None and ps.index > floor_at:
-                return
-            if not ps.done:
-                yield ps
-
-    def update_floor():
-        nonlocal floor_at
-        if stop.fer_floor is None:
-            return
-        for ps in points:
-            if not ps.done:
-                return
-            if point_fer_below_floor(ps):
-                floor_at = ps.index
-                return
-
-    def record(handle):
-        ps, task = inflight.pop(handle)
-        ps.handles.discard(handle)
-        res: ChunkResult = executor.result(handle)
-        t0 = time.perf_counter()
-        store.add_chunk(ps.pid, task.chunk_index, res.counts)
-        timing["store_seconds"] += time.perf_counter() - t0
-        timing["channel_seconds"] += res.channel_seconds
-        timing["worker_seconds"] += res.total_seconds
-        timing["decoder_seconds"] += sum(c[_F["seconds"]] for c in res.counts.values())
-        timing["chunks"] += 1
-        for spec, counts in res.counts.items():
-            ds = ps.decs[spec]
-            ds.inflight.discard(task.chunk_index)
-            ds.chunks[task.chunk_index] = counts
-            advance(ds)
-        if progress is not None:
-            progress(_progress_info(ps, stop, specs, snr_kind, k))
-
-    try:
-        executor.start(run_chunk, ctx)
-        while True:
-            update_floor()
-            now = time.perf_counter()
-            if stop.time_budget is not None:
-                for ps in active_points():
-                    if ps.started is not None and now - ps.started > stop.time_budget:
-                        for ds in ps.decs.values():
-                            if not ds.done:
-                                ds.done, ds.stop = True, "time_budget"
-                update_floor()
-            while len(inflight) < executor.capacity:
-                task = None
-                for ps in active_points():
-                    task = next_task(ps)
-                    if task is not None:
-                        break
-                    if not speculate:
-                        break
-                if task is None:
-                    break
-                if ps.started is None:
-                    ps.started = time.perf_counter()
-                    if progress is not None:
-                        progress(_progress_info(ps, stop, specs, snr_kind, k))
-                h = executor.submit(task)
-                inflight[h] = (ps, task)
-                ps.handles.add(h)
-                for i in task.decoders:
-                    ps.decs[specs[i]].inflight.add(task.chunk_index)
-            if not inflight:
-                break
-            wait_for = None if stop.time_budget is None else 0.25
-            for h in executor.wait(list(inflight), wait_for):
-                record(h)
-        # drop queued speculative chunks; keep (store) those already running
-        running = set(executor.cancel(list(inflight)))
-        for h in [h for h in inflight if h not in running]:
-            inflight.pop(h)
-        while inflight:
-            for h in executor.wait(list(inflight), None):
-                record(h)
-    except KeyboardInterrupt:
-        interrupted = True
-        raise
-    finally:
-        # keep every chunk that finished, then stop the workers
-        if inflight:
-            try:
-                for h in executor.wait(list(inflight), 0) or []:
-                    if h in inflight:
-                        try:
-                            record(h)
-                        except Exception:  # pragma: no cover - best effort while stopping
-                            inflight.pop(h, None)
-            except BaseException:  # pragma: no cover
-                pass
-        executor.close(abort=interrupted or bool(inflight))
-        timing["wall_seconds"] = time.perf_counter() - t_run
-        if interrupted and own_store:
-            store.close()
-
-    # ---- results
-    update_floor()
-    results, skipped = [], []
-    for ps in points:
-        if floor_at is not None and ps.index > floor_at:
-            skipped.append(ps.snr)
-            continue
-        for spec, ds in ps.decs.items():
-            pr = PointResult.from_counts(
-                tuple(ds.totals), decoder=spec, snr_kind=snr_kind, snr=ps.snr, rate=rate,
-                n=code.n, k=k, chunks=ds.next, stop=ds.stop, confidence=confidence)
-            results.append(pr)
-            store.save_result(ps.pid, spec, tuple(ds.totals), ds.next, ds.stop, stop.to_dict())
-    channel = {"kind": SNR_KINDS[snr_kind], "snr_kind": snr_kind,
-               "codewords": settings["codewords"], "rate": rate}
-    if forced:
-        channel["codewords_reason"] = forced
-    code_info = dict(code.summary())
-    code_info["source"] = code.source
-    out = SweepResult(code=code_info, channel=channel, points=results,
-                      settings={**settings, **stop.to_dict(), "decoders": specs,
-                                "confidence": confidence, "executor": executor.label,
-                                "workers": executor.workers},
-                      run_id=None if own_store else run_id, skipped=skipped, timing=timing)
-    if own_store:
-        store.close()
-    return out
-
-
-def _progress_info(ps: _PointState, stop: StopRule, specs, snr_kind: str, k: int) -> dict:
-    """Live figures of a point for progress displays."""
-    decs = []
-    frac = 1.0
-    for spec in specs:
-        ds = ps.decs[spec]
-        t = ds.totals
-        frames, fe = t[_F["frames"]], t[_F["frame_errors"]]
-        decs.append({"decoder": spec, "frames": frames, "frame_errors": fe,
-                     "fer": fe / frames if frames else float("nan"),
-                     "ber": t[_F["info_bit_errors"]] / (frames * k) if frames else float("nan"),
-                     "done": ds.done, "stop": ds.stop})
-        if not ds.done:
-            frac = min(frac, max(fe / stop.frame_errors, frames / stop.max_frames))
-    elapsed = time.perf_counter() - ps.started if ps.started else 0.0
-    eta = elapsed * (1 - frac) / frac if 0 < frac < 1 else (0.0 if frac >= 1 else None)
-    if stop.time_budget is not None and ps.started:
-        rest = max(stop.time_budget - elapsed, 0.0)
-        eta = rest if eta is None else min(eta, rest)
-    return {"snr": ps.snr, "snr_kind": snr_kind, "index": ps.index, "decoders": decs,
-            "fraction": frac, "elapsed": elapsed, "eta": eta, "done": ps.done}
+    sweep = Sweep(code, decoders, snr, snr_kind=snr_kind, seed=seed, stop=stop,
+                  chunk_frames=chunk_frames, random_codewords=random_codewords,
+                  confidence=confidence, speculate=speculate)
+    sweep.attach(store)
+    return sweep.run(executor=executor, progress=progress, workers=workers)

@@ -59,7 +59,12 @@ COUNT_FIELDS = (
     "undetected_errors",
     "iterations",
     "seconds",
+    "capped_frames",
 )
+
+#: Count columns added to schema version 1 after its first release: a store written
+#: before gets them (value 0) when opened for writing and reads them as 0 otherwise.
+_ADDED_COUNT_FIELDS = ("capped_frames",)
 
 _COUNT_COLS = ",\n    ".join(
     f"{f} {'REAL' if f == 'seconds' else 'INTEGER'} NOT NULL" for f in COUNT_FIELDS
@@ -192,6 +197,7 @@ class Store:
             st = cls(conn, path, lock_fd)
             if st._has_schema():
                 st._check_code(code)
+                st._add_missing_columns()
                 conn.execute("PRAGMA journal_mode=WAL")
                 st._create_extra()
             else:
@@ -280,6 +286,22 @@ class Store:
                     c.execute(stmt)
 
         self._tx(work)
+
+    def _columns(self, table: str) -> set:
+        return {r[1] for r in self._conn.execute(f"PRAGMA table_info({table})")}
+
+    def _add_missing_columns(self) -> None:
+        for table in ("chunks", "results"):
+            have = self._columns(table)
+            for f in _ADDED_COUNT_FIELDS:
+                if f not in have:
+                    self._conn.execute(
+                        f"ALTER TABLE {table} ADD COLUMN {f} INTEGER NOT NULL DEFAULT 0")
+
+    def _count_select(self, table: str, alias: str = "") -> str:
+        """The count columns of ``table`` for a SELECT (0 for columns an old store lacks)."""
+        have = self._columns(table)
+        return ", ".join(alias + f if f in have else "0" for f in COUNT_FIELDS)
 
     def meta(self) -> dict:
         """Store-level facts (code fingerprint, name, source, n, m, k)."""
@@ -434,7 +456,7 @@ class Store:
     def chunks(self, point_id: int) -> list[StoredChunk]:
         """All stored chunks of a point (any decoder, any size)."""
         rows = self._conn.execute(
-            f"SELECT decoder, chunk_index, {', '.join(COUNT_FIELDS)} FROM chunks "
+            f"SELECT decoder, chunk_index, {self._count_select('chunks')} FROM chunks "
             "WHERE point_id=? ORDER BY chunk_index", (point_id,)).fetchall()
         return [StoredChunk(r[0], int(r[1]), tuple(r[2:])) for r in rows]
 
@@ -459,7 +481,7 @@ class Store:
 
     def results(self, run_id: int | None = None) -> list[dict]:
         """Counted results (one dict per run, point and decoder), ordered by run, decoder, SNR."""
-        sql = (f"SELECT p.run_id, p.snr, r.decoder, {', '.join('r.' + f for f in COUNT_FIELDS)}, "
+        sql = (f"SELECT p.run_id, p.snr, r.decoder, {self._count_select('results', 'r.')}, "
                "r.chunks, r.stop, r.rule FROM results r JOIN points p ON p.id = r.point_id")
         args: tuple = ()
         if run_id is not None:
