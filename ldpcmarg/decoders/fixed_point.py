@@ -246,27 +246,47 @@ def _layered_frame(lq, check_ptr, edge_var, rule, a, beta, qmax, pmax, max_iter,
     return it, not _unsatisfied(P, check_ptr, edge_var)
 
 
-@nb.njit(parallel=True, **NUMBA_OPTS)
-def _fixed_batch(lq, check_ptr, edge_var, layered, rule, a, beta, qmax, pmax, max_iter, dmax,
-                 nchunks, post, iters, valid):
-    """Batch driver: lq (F, n) int8 levels -> post (F, n) int16; iters, valid (F,).
+@nb.njit(**NUMBA_OPTS)
+def _quantize_row(llr, step, qmax, out):
+    """``out = clip(rint(clip(llr, +-LLR_MAX) / step), -qmax, qmax)`` for one frame (int8)."""
+    for i in range(llr.shape[0]):
+        x = min(max(llr[i], -LLR_MAX), LLR_MAX)
+        out[i] = min(max(np.rint(x / step), -qmax), qmax)
 
-    Frame f goes to chunk f mod nchunks; a chunk owns its buffers (one thread).
+
+@nb.njit(parallel=True, **NUMBA_OPTS)
+def _fixed_batch(llr, quantized, lq_in, check_ptr, edge_var, layered, rule, a, beta, qmax, pmax,
+                 max_iter, dmax, nchunks, step, post_llr, post, iters, valid):
+    """Batch driver -> post_llr (F, n) float64 = P * step, post (F, n) int16; iters, valid (F,).
+
+    With ``quantized`` the integer levels come from ``lq_in`` (F, n) int8, else
+    they are quantised here from the float LLRs ``llr`` (F, n). Frame f goes to
+    chunk f mod nchunks; a chunk owns its buffers (one thread).
     """
-    F, n = lq.shape
+    F = post.shape[0]
+    n = post.shape[1]
     E = edge_var.shape[0]
     for ch in nb.prange(nchunks):
         c2v = np.zeros(E, dtype=np.int8)
         total = np.zeros(n, dtype=np.int64)
         tnew = np.zeros(n, dtype=np.int64)
         vbuf = np.zeros(dmax + 1, dtype=np.int64)
+        lq = np.zeros(n, dtype=np.int8)
         for f in range(ch, F, nchunks):
-            if layered:
-                it, ok = _layered_frame(lq[f], check_ptr, edge_var, rule, a, beta, qmax, pmax,
-                                        max_iter, c2v, post[f], vbuf)
+            if quantized:
+                for i in range(n):
+                    lq[i] = lq_in[f, i]
             else:
-                it, ok = _flood_frame(lq[f], check_ptr, edge_var, rule, a, beta, qmax, pmax,
-                                      max_iter, c2v, total, tnew, post[f], vbuf)
+                _quantize_row(llr[f], step, qmax, lq)
+            P = post[f]
+            if layered:
+                it, ok = _layered_frame(lq, check_ptr, edge_var, rule, a, beta, qmax, pmax,
+                                        max_iter, c2v, P, vbuf)
+            else:
+                it, ok = _flood_frame(lq, check_ptr, edge_var, rule, a, beta, qmax, pmax,
+                                      max_iter, c2v, total, tnew, P, vbuf)
+            for i in range(n):
+                post_llr[f, i] = P[i] * step
             iters[f] = it
             valid[f] = ok
 
@@ -341,28 +361,40 @@ class _FixedPoint(Decoder):
         """Channel levels of (F, n) LLRs (int8), as the decoder sees them."""
         return quantize_channel(llr, self.options["q"], self.options["step"])
 
-    def decode_levels(self, lq: np.ndarray):
-        """Decode integer channel levels (F, n) -> (P int16 (F, n), iterations, valid)."""
-        lq = np.ascontiguousarray(lq, dtype=np.int8)
-        F, n = lq.shape
+    def _run(self, llr, lq):
+        F, n = (llr if lq is None else lq).shape
         post = np.zeros((F, n), dtype=np.int16)
+        post_llr = np.empty((F, n), dtype=np.float64)
         iters = np.zeros(F, dtype=np.int64)
         valid = np.zeros(F, dtype=np.bool_)
         from .message_passing import _Threads
 
         th = self.options["threads"] or nb.get_num_threads()
         nchunks = max(1, min(F, 4 * th))
+        dummy_f = np.zeros((1, 1), dtype=np.float64)
+        dummy_q = np.zeros((1, 1), dtype=np.int8)
         with _Threads(self.options["threads"]):
-            _fixed_batch(lq, self._check_ptr, self._edge_var, self._layered, self._rule,
-                         int(self._a), int(self._beta), int(self.qmax),
-                         int(self.pmax), int(self.options["max_iter"]),
-                         max(self._dmax, 1), nchunks, post, iters, valid)
+            _fixed_batch(dummy_f if llr is None else llr, lq is not None,
+                         dummy_q if lq is None else lq, self._check_ptr, self._edge_var,
+                         self._layered, self._rule, int(self._a), int(self._beta),
+                         int(self.qmax), int(self.pmax), int(self.options["max_iter"]),
+                         max(self._dmax, 1), nchunks, float(self.options["step"]), post_llr,
+                         post, iters, valid)
+        return post_llr, post, iters, valid
+
+    def decode_levels(self, lq: np.ndarray):
+        """Decode integer channel levels (F, n) -> (P int16 (F, n), iterations, valid)."""
+        lq = np.ascontiguousarray(lq, dtype=np.int8)
+        if lq.ndim != 2 or lq.shape[1] != self.code.n:
+            raise InputError(f"Channel levels must have shape (F, {self.code.n}).")
+        if np.abs(lq.astype(np.int64)).max(initial=0) > self.qmax:
+            raise InputError(f"Channel levels must lie within +-QMAX = {self.qmax}.")
+        _, post, iters, valid = self._run(None, lq)
         return post, iters, valid
 
     def _decode(self, llr: np.ndarray) -> DecodeResult:
-        post, iters, valid = self.decode_levels(self.quantize(llr))
-        return DecodeResult(bits=(post < 0).astype(np.uint8),
-                            posterior_llr=post.astype(np.float64) * self.options["step"],
+        post_llr, post, iters, valid = self._run(np.ascontiguousarray(llr), None)
+        return DecodeResult(bits=(post < 0).astype(np.uint8), posterior_llr=post_llr,
                             iterations=iters, valid=valid, info={})
 
 

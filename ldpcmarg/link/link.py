@@ -1,4 +1,4 @@
-"""The link as built: rate matching, interleaver, scrambler, modulation, fading, demapper, quantiser.
+"""The link as built: rate matching, interleaver, scrambler, modulation, fading, quantiser.
 
 :class:`Link` turns codewords into the decoder's channel LLRs::
 
@@ -160,7 +160,7 @@ class Link:
 
     @property
     def is_plain_bpsk(self) -> bool:
-        """BPSK, no fading, no rate matching, no quantiser, no interleaver (the classic AWGN link)."""
+        """BPSK, no fading, rate matching, quantiser or interleaver: the classic AWGN link."""
         return (self.constellation.size == 2 and self.constellation.name == "bpsk"
                 and self.demapper == "exact" and not self.fading.active
                 and not self.rate_matching.active and self.quantizer is None

@@ -67,7 +67,7 @@ class Quantizer:
         return 2 ** (self.q - 1) - 1
 
     def step_for(self, esn0_db: float, min_distance: float) -> float:
-        """The step used at Es/N0 (dB) for a constellation with minimum distance ``min_distance``."""
+        """The step used at Es/N0 (dB) for a constellation of minimum distance ``min_distance``."""
         if self.step is not None:
             return float(self.step)
         g = (min_distance / 2.0) ** 2 * 10.0 ** (esn0_db / 10.0)
