@@ -22,6 +22,7 @@ STUDIES = {
     "throughput_scaling.py": ["length_scaling.csv", "lp_scaling.csv", "throughput_scaling.png"],
     "soft_output_study.py": ["table.csv", "table.md", "soft_output.png"],
     "fw_convergence.py": ["fw_convergence.md", "fw_convergence.png"],
+    "fixed_point_loss.py": ["fixed_point_loss.md", "fixed_point_loss.json"],
 }
 
 

@@ -225,6 +225,7 @@ class CompareResult:
     reference_time_per_frame_s: list[float | None]
     decoders: list[str]
     rows: list[DecoderPoint]
+    link: dict | None = None
 
     @property
     def snr_label(self) -> str:
@@ -236,7 +237,8 @@ class CompareResult:
 
     def to_dict(self) -> dict:
         return _json_clean({
-            "code": self.code, "channel": self.channel, "snr_unit": self.snr_unit,
+            "code": self.code, "channel": self.channel, "link": self.link,
+            "snr_unit": self.snr_unit,
             "snr_axis": self.snr_label, "snr_points": list(self.snr_points),
             "frames": self.frames, "seed": self.seed, "reference": self.reference,
             "reference_note": self.reference_note,
@@ -364,7 +366,7 @@ def compare_decoders(code, decoders, *, snr, snr_unit: str = "ebn0", frames: int
                      seed: int = 0, reference: str = "auto", exact_method: str = "auto",
                      num_bins: int = 12, binning: str = "log", min_prob: float = 1e-6,
                      warmup: bool = True, progress=None,
-                     labels: list[str] | None = None) -> CompareResult:
+                     labels: list[str] | None = None, link=None) -> CompareResult:
     """Run several decoders on the same frames and measure them.
 
     Parameters
@@ -397,6 +399,11 @@ def compare_decoders(code, decoders, *, snr, snr_unit: str = "ebn0", frames: int
         compilation out of the times).
     progress : callable, optional
         Called as ``progress(snr, label)`` before each decoder runs.
+    link : ldpcmarg.link.link.Link, optional
+        Send the frames over this link (modulation, fading, rate matching,
+        quantiser); Eb/N0 uses its transmitted rate and bits per symbol. Exact
+        posteriors then treat the bit LLRs as the channel (bits of one symbol
+        are not independent, so this is the bitwise-interleaved receiver's view).
     labels : list of str, optional
         Names for the decoders in tables, JSON and legends (default: each
         decoder's canonical spec, ``#2``, ``#3`` appended to repeats).
@@ -453,6 +460,9 @@ def compare_decoders(code, decoders, *, snr, snr_unit: str = "ebn0", frames: int
         ref_kind = "decoder"
     # channels first: bad SNR values fail before any decoding
     channels = [_channel_for(snr_unit, s, code.rate) for s in snr_points]
+    if link is not None and snr_unit not in ("ebn0", "esn0"):
+        raise InputError("A link (modulation, fading, rate matching, quantiser) needs Eb/N0 "
+                         "or Es/N0 points.")
     if warmup:
         w = np.zeros((1, code.n))
         w[0, :] = 2.0
@@ -464,8 +474,13 @@ def compare_decoders(code, decoders, *, snr, snr_unit: str = "ebn0", frames: int
     ref_times: list[float | None] = []
     for j, (s, ch) in enumerate(zip(snr_points, channels, strict=True)):
         rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(j,)))
-        cw = random_codewords(code, int(frames), rng)
-        llr = ch.sample_llr(cw, rng)
+        if link is None:
+            cw = random_codewords(code, int(frames), rng)
+            llr = ch.sample_llr(cw, rng)
+        else:
+            cw = _link_codewords(code, link, int(frames), rng)
+            es = link.esn0_linear(s) if snr_unit == "ebn0" else 10.0 ** (s / 10.0)
+            llr = link.sample_llr(cw, es, rng)
         ref_p1 = ref_llr = None
         t_ref = None
         if ref_kind in ("auto", "exact"):
@@ -510,7 +525,17 @@ def compare_decoders(code, decoders, *, snr, snr_unit: str = "ebn0", frames: int
         snr_points=snr_points, frames=int(frames), seed=int(seed), reference=ref_name,
         reference_note=ref_note if ref_name == "none" else "",
         reference_time_per_frame_s=ref_times, decoders=labels, rows=rows,
+        link=None if link is None else link.record(),
     )
+
+
+def _link_codewords(code, link, frames: int, rng) -> np.ndarray:
+    """Random codewords with zeros at the link's shortened positions."""
+    enc = code.encoder
+    pos = np.asarray(enc.info_positions, dtype=np.int64)
+    msgs = rng.integers(0, 2, size=(frames, pos.size), dtype=np.uint8)
+    msgs[:, np.isin(pos, link.rate_matching.shortened)] = 0
+    return np.asarray(enc.encode(msgs), dtype=np.uint8)
 
 
 def _measure(label, spec, snr, cw, res, ref_p1, ref_llr, dt, num_bins, binning,

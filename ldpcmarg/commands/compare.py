@@ -9,6 +9,7 @@ from pathlib import Path
 import click
 
 from ..errors import InputError
+from ._link_options import build_cli_link, link_input_files, link_options
 from ._outputs import Outputs
 from .posteriors import load_code_arg
 from .simulate import _dur
@@ -49,8 +50,10 @@ def parse_points(text: str, what: str) -> list[float]:
               help="Write figures (PNG) into this directory.")
 @click.option("--force", is_flag=True, help="Overwrite an existing JSON file or figures.")
 @click.option("--quiet", is_flag=True, help="No progress lines.")
+@link_options
 def command(code, decoders, ebn0, esn0, sigma, bsc, bec, frames, seed, reference, bins, binning,
-            json_path, plot_dir, force, quiet):
+            json_path, plot_dir, force, quiet, modulation, fading, puncture, shorten, quantize,
+            interleaver):
     """Compare decoders on the same seeded frames of CODE.
 
     Per decoder and SNR point: BER, FER, mean/max |P(x=1) error| and mean KL
@@ -72,11 +75,16 @@ def command(code, decoders, ebn0, esn0, sigma, bsc, bec, frames, seed, reference
     points = parse_points(text, {"p": "bsc", "epsilon": "bec"}.get(unit, unit))
     outputs = Outputs(force)
     outputs.protect_if_file(code, f"the code file {code}")
+    for f in link_input_files(modulation, puncture):
+        outputs.protect_if_file(f, f"the link input file {f}")
     if json_path != "-":
         outputs.add(json_path, "--json")
     outputs.add_dir(plot_dir, "--plots", "compare_*.png")
     outputs.check()
     the_code = load_code_arg(code)
+    link = build_cli_link(the_code, modulation=modulation, fading=fading, puncture=puncture,
+                          shorten=shorten, quantize=quantize, interleaver=interleaver,
+                          channel="awgn" if unit in ("ebn0", "esn0") else unit)
 
     steps = len(points) * len(decoders)
     clock = {"start": None, "step": 0}
@@ -96,7 +104,7 @@ def command(code, decoders, ebn0, esn0, sigma, bsc, bec, frames, seed, reference
 
     res = compare_decoders(the_code, list(decoders), snr=points, snr_unit=unit, frames=frames,
                            seed=seed, reference=reference, num_bins=bins, binning=binning,
-                           progress=progress)
+                           progress=progress, link=link)
     if json_path == "-":
         click.echo(json.dumps(res.to_dict(), indent=1, allow_nan=False))
     else:

@@ -11,6 +11,7 @@ import time
 import click
 
 from ..errors import InputError
+from ._link_options import build_cli_link, link_input_files, link_options
 from ._outputs import Outputs
 
 GRID_HELP = ("a,b,c or start:step:stop (stop included when it lies on the grid; "
@@ -226,10 +227,11 @@ def _positive(name):
 @click.option("--force", is_flag=True,
               help="Overwrite existing --json, --csv and --plot files.")
 @click.option("-q", "--quiet", is_flag=True, help="No progress lines.")
+@link_options
 def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_frames,
             time_budget, fer_floor, seed, workers, cluster, cluster_timeout, chunk_frames,
             random_codewords, confidence, store_path, json_path, csv_path, plot_path, force,
-            quiet):
+            quiet, modulation, fading, puncture, shorten, quantize, interleaver):
     """Simulate BER and FER of CODE (a shipped name or a matrix file) over an SNR grid.
 
     \b
@@ -278,6 +280,8 @@ def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_f
     outputs = Outputs(force)
     outputs.protect(store_path, f"the store --store {store_path}", store=True)
     outputs.protect_if_file(code, f"the code file {code}")
+    for f in link_input_files(modulation, puncture):
+        outputs.protect_if_file(f, f"the link input file {f}")
     outputs.add(json_path, "--json")
     outputs.add(csv_path, "--csv")
     outputs.add(plot_path, "--plot")
@@ -290,6 +294,9 @@ def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_f
 
     for spec in decoders:
         make_decoder(spec, code_obj)
+    link = build_cli_link(code_obj, modulation=modulation, fading=fading, puncture=puncture,
+                          shorten=shorten, quantize=quantize, interleaver=interleaver,
+                          channel=channel)
     for v in grid:
         _point_channel(SNR_KINDS[snr_kind], snr_kind, v, code_obj.rate)
 
@@ -312,7 +319,7 @@ def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_f
         res = simulate(code_obj, list(decoders), grid, snr_kind=snr_kind, seed=seed, stop=stop,
                        chunk_frames=chunk_frames, random_codewords=random_codewords,
                        workers=workers, executor=executor, store=store, progress=progress,
-                       confidence=confidence)
+                       confidence=confidence, link=link)
     except KeyboardInterrupt:
         if store is not None:
             click.echo(f"\nInterrupted; finished chunks are kept in {store_path}. Run the same "
@@ -326,7 +333,8 @@ def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_f
         if executor is not None:
             executor.close(abort=True)
     click.echo(f"code {code_obj.name}: n={code_obj.n} k={code_obj.k} rate={code_obj.rate:.4f}; "
-               f"channel {res.channel['kind']} ({res.channel['codewords']} codewords); "
+               f"channel {res.channel['kind']} ({res.channel['codewords']} codewords"
+               + (f"; {link.label()}" if link is not None else "") + "); "
                f"seed {seed}; {res.settings['executor']} x{res.settings['workers']}")
     click.echo(res.table())
     if json_path:

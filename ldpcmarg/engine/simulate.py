@@ -266,6 +266,7 @@ class SweepContext:
     seed: int
     random_codewords: bool
     key: str
+    link: object = None
 
 
 @dataclass(frozen=True)
@@ -336,6 +337,8 @@ def _worker_state(ctx: SweepContext):
         decs = [make_decoder(s, code) for s in ctx.decoders]
         _warm_up(decs, code.n)
         info = info_positions(code)
+        if ctx.link is not None and ctx.link.rate_matching.shortened.size:
+            info = np.setdiff1d(info, ctx.link.rate_matching.shortened).astype(np.int64)
         enc = code.encoder if ctx.random_codewords else None
         if len(_STATE) > 4:
             _STATE.clear()
@@ -420,8 +423,11 @@ def run_chunk(ctx: SweepContext, task: ChunkTask) -> ChunkResult:
                                                                   int(task.chunk_index)))
     noise_ss, msg_ss = ss.spawn(2)
     rng = np.random.default_rng(noise_ss)
-    channel = _point_channel("", ctx.snr_kind, task.snr, ctx.rate)
-    if ctx.random_codewords:
+    channel = None if ctx.link is not None else \
+        _point_channel("", ctx.snr_kind, task.snr, ctx.rate)
+    if ctx.link is not None:
+        cw, llr = _link_llr(ctx.link, ctx, task, F, n, info, enc, rng, msg_ss)
+    elif ctx.random_codewords:
         msgs = np.random.default_rng(msg_ss).integers(0, 2, size=(F, len(info)), dtype=np.uint8)
         cw = np.ascontiguousarray(enc.encode(msgs), dtype=np.uint8)
         if channel.symmetric:
@@ -469,6 +475,30 @@ def run_chunk(ctx: SweepContext, task: ChunkTask) -> ChunkResult:
     counts = {d: tuple(float(v) if k == _F["seconds"] else int(v) for k, v in enumerate(t))
               for d, t in totals.items()}
     return ChunkResult(task, counts, t_channel, time.perf_counter() - t_start, cut_short=cut)
+
+
+def _link_llr(link, ctx, task, F, n, info, enc, rng, msg_ss):
+    """Codewords (None = all zero) and decoder LLRs of a chunk sent over ``link``.
+
+    All-zero codewords by default: the link's scrambler (when its bit channels
+    are not output-symmetric) makes that exact. Random codewords carry zeros at
+    the shortened positions (``info`` excludes them).
+    """
+    if ctx.snr_kind == "ebn0_db":
+        esn0 = link.esn0_linear(task.snr)
+    else:
+        esn0 = 10.0 ** (float(task.snr) / 10.0)
+    if ctx.random_codewords:
+        msg_pos = np.asarray(enc.info_positions, dtype=np.int64)
+        msgs = np.zeros((F, len(msg_pos)), dtype=np.uint8)
+        free = np.isin(msg_pos, info)
+        msgs[:, free] = np.random.default_rng(msg_ss).integers(
+            0, 2, size=(F, int(free.sum())), dtype=np.uint8)
+        cw = np.ascontiguousarray(enc.encode(msgs), dtype=np.uint8)
+    else:
+        cw = None
+    sent = cw if cw is not None else np.zeros((F, n), dtype=np.uint8)
+    return cw, link.sample_llr(sent, esn0, rng)
 
 
 # ---------------------------------------------------------------- results
@@ -684,7 +714,7 @@ def simulate(code, decoders, snr, *, snr_kind: str = "ebn0_db", seed: int = 1,
              stop: StopRule | None = None, chunk_frames: int | None = None,
              random_codewords: bool = False, workers: int | None = 1, executor=None,
              store: Store | None = None, progress=None, confidence: float = 0.95,
-             speculate: bool = True) -> SweepResult:
+             speculate: bool = True, link=None) -> SweepResult:
     """Run a BER/FER sweep.
 
     Parameters
@@ -722,6 +752,13 @@ def simulate(code, decoders, snr, *, snr_kind: str = "ebn0_db", seed: int = 1,
         Level of the reported intervals.
     speculate : bool
         Let idle workers start chunks of later points early.
+    link : ldpcmarg.link.link.Link, optional
+        Modulation, fading, rate matching and quantiser (AWGN only). Eb/N0 then
+        uses the transmitted rate and the bits per symbol
+        (``Es/N0 = R_t m Eb/N0``), BER counts the ``k - s`` unshortened
+        information bits, and every link setting is part of the run's identity
+        in the store. The all-zero codeword plus the link's scrambler stands for
+        random codewords (see :mod:`ldpcmarg.link.link`).
 
     Returns
     -------
@@ -753,6 +790,6 @@ def simulate(code, decoders, snr, *, snr_kind: str = "ebn0_db", seed: int = 1,
 
     sweep = Sweep(code, decoders, snr, snr_kind=snr_kind, seed=seed, stop=stop,
                   chunk_frames=chunk_frames, random_codewords=random_codewords,
-                  confidence=confidence, speculate=speculate)
+                  confidence=confidence, speculate=speculate, link=link)
     sweep.attach(store)
     return sweep.run(executor=executor, progress=progress, workers=workers)

@@ -310,7 +310,7 @@ class Sweep:
 
     def __init__(self, code, decoders, snr, *, snr_kind: str = "ebn0_db", seed: int = 1,
                  stop=None, chunk_frames: int | None = None, random_codewords: bool = False,
-                 confidence: float = 0.95, speculate: bool = True):
+                 confidence: float = 0.95, speculate: bool = True, link=None):
         from ..decoders.base import make_decoder
         from .simulate import (
             CHUNK_SCHEME,
@@ -342,6 +342,7 @@ class Sweep:
             raise InputError("The SNR grid repeats a value.")
         rate = code.rate
         channels = [_point_channel(SNR_KINDS[snr_kind], snr_kind, s, rate) for s in snr]
+        link = _check_link(link, code, snr_kind)
         decs = [make_decoder(d, code) for d in decoders]
         specs = [d.spec for d in decs]
         dup = {s for s in specs if specs.count(s) > 1}
@@ -364,8 +365,11 @@ class Sweep:
         if random_codewords and getattr(code, "encoder", None) is None:
             raise InputError("Random codewords need an encoder for this code (code.encoder).")
         info = info_positions(code)
+        if link is not None and link.rate_matching.shortened.size:
+            info = np.setdiff1d(info, link.rate_matching.shortened).astype(np.int64)
 
         self.code = code
+        self.link = link
         self.snr = snr
         self.keys = keys
         self.snr_kind = snr_kind
@@ -385,12 +389,14 @@ class Sweep:
             "codewords": "random" if random_codewords else "all-zero",
             "info_positions": hashlib.sha256(info.tobytes()).hexdigest()[:16],
         }
+        if link is not None:  # every link setting is part of the run's identity
+            self.settings["link"] = link.to_dict()
         ctx_key = hashlib.sha256(json.dumps(
             [self.settings, code.fingerprint, specs], sort_keys=True).encode()).hexdigest()[:16]
         self.context = SweepContext(
             H=code.H, code_name=code.name, code_source=code.source, rate=rate,
             decoders=tuple(specs), snr_kind=snr_kind, seed=int(seed),
-            random_codewords=bool(random_codewords), key=ctx_key)
+            random_codewords=bool(random_codewords), key=ctx_key, link=link)
         self.store: Store | None = None
         self.own_store = False
         self.run_id: int | None = None
@@ -610,6 +616,10 @@ class Sweep:
         self.update_floor()
         code, rule, ex = self.code, self.rule, self._executor
         results, skipped = [], []
+        link = self.link
+        # Eb/N0 <-> Es/N0 uses the transmitted rate times the bits per symbol
+        rate = code.rate if link is None else link.transmitted_rate * link.bits_per_symbol
+        n_bits = code.n if link is None else code.n - int(link.rate_matching.shortened.size)
         for ps in self.points:
             if self.floor_at is not None and ps.index > self.floor_at:
                 skipped.append(ps.snr)
@@ -617,7 +627,7 @@ class Sweep:
             for spec, ds in ps.decs.items():
                 results.append(PointResult.from_counts(
                     tuple(ds.totals), decoder=spec, snr_kind=self.snr_kind, snr=ps.snr,
-                    rate=code.rate, n=code.n, k=self.k, chunks=ds.next, stop=ds.stop,
+                    rate=rate, n=n_bits, k=self.k, chunks=ds.next, stop=ds.stop,
                     cut_short_chunks=ds.cut_short, confidence=self.confidence))
                 self.store.save_result(ps.pid, spec, tuple(ds.totals), ds.next, ds.stop,
                                        rule.to_dict())
@@ -625,6 +635,8 @@ class Sweep:
                    "codewords": self.settings["codewords"], "rate": code.rate}
         if self.forced:
             channel["codewords_reason"] = self.forced
+        if self.settings["channel"] == "awgn":
+            channel.update(_link_record(code, link))
         code_info = dict(code.summary())
         code_info["source"] = code.source
         out = SweepResult(
@@ -638,3 +650,27 @@ class Sweep:
         if self.own_store:
             self.store.close()
         return out
+
+
+def _check_link(link, code, snr_kind):
+    """None for the classic BPSK-AWGN link (old run identities stay valid), else the link."""
+    if link is None:
+        return None
+    if link.n != code.n:
+        raise InputError(f"The link was built for n = {link.n}, the code has n = {code.n}.")
+    if link.is_plain_bpsk:
+        return None
+    if snr_kind not in ("ebn0_db", "esn0_db"):
+        raise InputError("Modulation, fading, rate matching and quantisation need the AWGN "
+                         "channel (give Eb/N0 or Es/N0, not p or epsilon).")
+    return link
+
+
+def _link_record(code, link) -> dict:
+    """The link fields of the JSON ``channel`` object (BPSK defaults without a link)."""
+    if link is not None:
+        return link.record()
+    return {"modulation": "bpsk", "demapper": "exact", "bits_per_symbol": 1, "fading": "none",
+            "fading_spec": "none", "block": 1, "puncture": 0, "shorten": 0, "quantize": None,
+            "interleaver": None, "scrambler": False, "transmitted_rate": code.rate,
+            "punctured_stopping_set": 0}
