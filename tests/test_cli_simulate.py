@@ -223,5 +223,6 @@ def test_plot_draws_density_evolution_threshold(tmp_path, capsys):
     status, out, err = run_cli(["plot", js, "-o", png, "--threshold", "peg-504-3-6"], capsys)
     assert status == 0, err
     assert Path(png).read_bytes()[:4] == b"\x89PNG"
-    status, _, err = run_cli(["plot", js, "-o", png, "--threshold", "no-such-code.txt"], capsys)
+    status, _, err = run_cli(["plot", js, "-o", png, "--force", "--threshold", "no-such-code.txt"],
+                             capsys)
     assert status == 2 and "no-such-code.txt" in err and "Traceback" not in err

@@ -634,7 +634,12 @@ def write_posteriors(result: PosteriorResult, path, *, fmt: str | None = None,
     for t in targets.values():
         if t.is_dir():
             raise InputError(f"Output path {t} is a directory.")
-        t.parent.mkdir(parents=True, exist_ok=True)
+        if t.is_symlink() and not t.exists():
+            raise InputError(f"Output path {t} is a symbolic link to a missing file; remove "
+                             "the link or choose another name.")
+        if not t.parent.is_dir():
+            raise InputError(f"The folder {t.parent} of output {t} does not exist; create it "
+                             "first.")
     if f == "npz":
         arrays = {"p1": result.p1, "llr": result.llr, "bits": result.bits,
                   "iterations": result.iterations, "valid": result.valid,

@@ -10,6 +10,7 @@ import numpy as np
 from ..code import construct as C
 from ..code.io import load_code, save_code
 from ..errors import InputError
+from ._outputs import Outputs
 
 _HELP = {
     "gallager": "Gallager (dv, dc)-regular: --length, --bit-degree, --check-degree, --seed.",
@@ -160,8 +161,9 @@ def command(construction, output, fmt, name, force, **opts):
 
     Example: ldpcmarg build peg -n 504 --bit-degree 3 --check-degree 6 --seed 1 -o peg504.txt
     """
-    if output.exists() and not force:
-        raise InputError(f"{output} exists; pass --force to overwrite it.")
+    outputs = Outputs(force)
+    outputs.add(output, "-o")
+    outputs.check()
     code = build_code(construction, **opts)
     if name:
         code.name = name

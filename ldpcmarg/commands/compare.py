@@ -8,6 +8,7 @@ from pathlib import Path
 import click
 
 from ..errors import InputError
+from ._outputs import Outputs
 from .posteriors import load_code_arg
 
 
@@ -67,12 +68,12 @@ def command(code, decoders, ebn0, esn0, sigma, bsc, bec, frames, seed, reference
         raise InputError("Give exactly one of --ebn0, --esn0, --sigma, --bsc or --bec.")
     (unit, text), = given.items()
     points = parse_points(text, {"p": "bsc", "epsilon": "bec"}.get(unit, unit))
-    if json_path and json_path != "-" and Path(json_path).exists() and not force:
-        raise InputError(f"Output file {json_path} exists; pass --force to overwrite.")
-    if plot_dir and not force:
-        old = sorted(Path(plot_dir).glob("compare_*.png"))
-        if old:
-            raise InputError(f"Figure {old[0]} exists; pass --force to overwrite.")
+    outputs = Outputs(force)
+    outputs.protect_if_file(code, f"the code file {code}")
+    if json_path != "-":
+        outputs.add(json_path, "--json")
+    outputs.add_dir(plot_dir, "--plots", "compare_*.png")
+    outputs.check()
     the_code = load_code_arg(code)
 
     def progress(snr, label):
@@ -87,7 +88,6 @@ def command(code, decoders, ebn0, esn0, sigma, bsc, bec, frames, seed, reference
     else:
         click.echo(res.format_table())
         if json_path:
-            Path(json_path).parent.mkdir(parents=True, exist_ok=True)
             Path(json_path).write_text(json.dumps(res.to_dict(), indent=1, allow_nan=False))
             click.echo(f"wrote {json_path}")
     if plot_dir:

@@ -5,6 +5,7 @@ from __future__ import annotations
 import click
 
 from ..errors import InputError
+from ._outputs import Outputs
 
 
 def _thresholds(values) -> dict:
@@ -36,8 +37,9 @@ def _thresholds(values) -> dict:
 @click.option("--no-uncoded", is_flag=True, help="Leave out the uncoded reference curve.")
 @click.option("--no-shannon", is_flag=True, help="Leave out the Shannon-limit line(s).")
 @click.option("--title", default=None, help="Figure title.")
+@click.option("--force", is_flag=True, help="Overwrite an existing figure file.")
 def command(sources, output, run, metric, lines, threshold_codes, no_uncoded, no_shannon,
-            title):
+            title, force):
     """Draw BER and FER against Eb/N0 from SOURCES (stores, --json or --csv files).
 
     Several sources (codes, decoders) share one figure. Error bars are the
@@ -47,6 +49,11 @@ def command(sources, output, run, metric, lines, threshold_codes, no_uncoded, no
     from ..plots.curves import check_figure_path, curves_from_file, curves_from_store, plot_curves
 
     check_figure_path(output)
+    outputs = Outputs(force)
+    for src in sources:
+        outputs.protect(src, f"the source {src}", store=True)
+    outputs.add(output, "-o")
+    outputs.check()
     extra = _thresholds(lines)
     if threshold_codes:
         from .. import load_code

@@ -7,6 +7,7 @@ import json
 import click
 
 from ..errors import InputError
+from ._outputs import Outputs
 
 _CHANNEL_FLAGS = ("ebn0", "esn0", "sigma", "bsc", "bec")
 
@@ -81,11 +82,12 @@ def command(code, input_path, output, decoder, ebn0, esn0, sigma, bsc, bec, key,
 
     spec = channel_spec_from_flags(ebn0=ebn0, esn0=esn0, sigma=sigma, bsc=bsc, bec=bec)
     # check the output target before the (possibly long) decoding
-    targets = output_paths(output, fmt)
-    if not force:
-        for t in targets.values():
-            if t.exists():
-                raise InputError(f"Output file {t} exists; pass --force to overwrite.")
+    outputs = Outputs(force)
+    outputs.protect(input_path, f"the input {input_path}")
+    outputs.protect_if_file(code, f"the code file {code}")
+    for role, target in output_paths(output, fmt).items():
+        outputs.add(target, "-o" if role in ("bundle", "p1", "table") else f"-o ({role} file)")
+    outputs.check()
     the_code = load_code_arg(code)
     data = read_frames(input_path, key=key, n=the_code.n,
                        prefer=("outputs", "y", "llr") if spec else ("llr", "outputs", "y"))

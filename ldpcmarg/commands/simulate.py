@@ -11,6 +11,7 @@ import time
 import click
 
 from ..errors import InputError
+from ._outputs import Outputs
 
 GRID_HELP = ("a,b,c or start:step:stop (stop included when it lies on the grid; "
              "forms can be mixed: 0:0.5:2,2.25)")
@@ -145,10 +146,13 @@ def _positive(name):
               help="Write the curve as CSV.")
 @click.option("--plot", "plot_path", type=click.Path(dir_okay=False), default=None,
               help="Write a BER/FER figure (.png, .svg or .pdf).")
+@click.option("--force", is_flag=True,
+              help="Overwrite existing --json, --csv and --plot files.")
 @click.option("-q", "--quiet", is_flag=True, help="No progress lines.")
 def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_frames,
             time_budget, fer_floor, seed, workers, cluster, cluster_timeout, chunk_frames,
-            random_codewords, confidence, store_path, json_path, csv_path, plot_path, quiet):
+            random_codewords, confidence, store_path, json_path, csv_path, plot_path, force,
+            quiet):
     """Simulate BER and FER of CODE (a shipped name or a matrix file) over an SNR grid.
 
     \b
@@ -190,15 +194,17 @@ def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_f
         grid = parse_grid(param_grid, "--param")
     stop = StopRule(frame_errors=frame_errors, max_frames=max_frames, time_budget=time_budget,
                     fer_floor=fer_floor)
-    for path, what in ((json_path, "--json"), (csv_path, "--csv"), (plot_path, "--plot")):
-        if path is not None:
-            parent = os.path.dirname(os.path.abspath(path))
-            if not os.path.isdir(parent):
-                raise InputError(f"{what}: directory {parent!r} does not exist.")
     if plot_path is not None:
         from ..plots.curves import check_figure_path
 
         check_figure_path(plot_path)
+    outputs = Outputs(force)
+    outputs.protect(store_path, f"the store --store {store_path}", store=True)
+    outputs.protect_if_file(code, f"the code file {code}")
+    outputs.add(json_path, "--json")
+    outputs.add(csv_path, "--csv")
+    outputs.add(plot_path, "--plot")
+    outputs.check()
     code_obj = _load_code(code)
     # decoders and SNR values are checked by simulate() before it writes anything;
     # check them here too so that a bad spec never opens the store
