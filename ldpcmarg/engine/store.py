@@ -38,7 +38,8 @@ from ..errors import StoreError
 
 __all__ = ["Store", "COUNT_FIELDS", "SCHEMA_VERSION"]
 
-SCHEMA_VERSION = 1
+#: 2 adds ``ml_lower_bound_frame_errors`` (version-1 stores are refused with a message).
+SCHEMA_VERSION = 2
 
 #: Integer/float count columns of a chunk or a result, in storage order.
 COUNT_FIELDS = (
@@ -49,6 +50,7 @@ COUNT_FIELDS = (
     "info_bit_errors_sq",
     "frame_errors",
     "undetected_errors",
+    "ml_lower_bound_frame_errors",
     "iterations",
     "seconds",
 )
