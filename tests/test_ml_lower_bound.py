@@ -96,3 +96,30 @@ def test_cli_json_csv_and_store(tmp_path, capsys):
     fig = tmp_path / "f.png"
     st, _, err = run_cli(["plot", store, "-o", fig, "--metric", "fer", "--limits"], capsys)
     assert st == 0 and fig.stat().st_size > 0, err
+
+
+def test_version1_store_reads_without_the_bound(tmp_path, capsys):
+    # a store written before the count existed: plotting and listing still work,
+    # the bound is reported as unknown (None), and writing into it is refused
+    import sqlite3
+
+    from ldpcmarg.engine.store import Store
+    from ldpcmarg.errors import StoreError
+    from ldpcmarg.plots.curves import curves_from_store
+
+    path = tmp_path / "old.sqlite"
+    with Store.open_writer(path, GOLAY) as st:
+        res = simulate(GOLAY, ["osd:order=0"], [2.0], seed=1,
+                       stop=StopRule(frame_errors=5, max_frames=256), store=st)
+    assert res.points[0].frames > 0
+    con = sqlite3.connect(path)
+    con.execute("UPDATE meta SET value='1' WHERE key='schema_version'")
+    con.commit()
+    con.close()
+    with Store.open_reader(path) as st:
+        rows = st.results()
+    assert rows[0]["ml_lower_bound_frame_errors"] is None
+    (curve,) = curves_from_store(path)
+    assert curve.ml_lb is None and curve.fer[0] > 0
+    with pytest.raises(StoreError, match="schema version"):
+        Store.open_writer(path, GOLAY)

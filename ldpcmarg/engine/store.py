@@ -381,8 +381,16 @@ class Store:
         return out
 
     def results(self, run_id: int | None = None) -> list[dict]:
-        """Counted results (one dict per run, point and decoder), ordered by run, decoder, SNR."""
-        sql = (f"SELECT p.run_id, p.snr, r.decoder, {', '.join('r.' + f for f in COUNT_FIELDS)}, "
+        """Counted results (one dict per run, point and decoder), ordered by run, decoder, SNR.
+
+        Version-1 stores (read-only use) give ``ml_lower_bound_frame_errors = None``.
+        """
+        cols = [f"r.{f}" for f in COUNT_FIELDS]
+        if self.meta().get("schema_version") == "1":
+            # written before the ML lower bound was counted: report it as unknown (None)
+            cols = ["NULL" if f == "ml_lower_bound_frame_errors" else c
+                    for f, c in zip(COUNT_FIELDS, cols, strict=True)]
+        sql = (f"SELECT p.run_id, p.snr, r.decoder, {', '.join(cols)}, "
                "r.chunks, r.stop, r.rule FROM results r JOIN points p ON p.id = r.point_id")
         args: tuple = ()
         if run_id is not None:

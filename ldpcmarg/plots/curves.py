@@ -173,9 +173,19 @@ def curves_from_store(path, run: int | None = None, confidence: float = 0.95) ->
             "ber_ci": stats.ber_interval(r["info_bit_errors"], r["info_bit_errors_sq"], F, k,
                                          confidence),
             "fer_ci": stats.clopper_pearson(r["frame_errors"], F, confidence),
-            "n": n, "k": k, "ml_lb": r["ml_lower_bound_frame_errors"] / F,
-            "ml_lb_ci": stats.clopper_pearson(r["ml_lower_bound_frame_errors"], F, confidence)})
+            "n": n, "k": k, **_store_ml_bound(r.get("ml_lower_bound_frame_errors"), F,
+                                              confidence)})
     return _records_to_curves(recs)
+
+
+def _store_ml_bound(count, frames: int, confidence: float) -> dict:
+    """ML-lower-bound rate and interval of a stored count (None when not counted)."""
+    from ..engine import stats
+
+    if count is None:
+        return {"ml_lb": None, "ml_lb_ci": None}
+    return {"ml_lb": count / frames,
+            "ml_lb_ci": stats.clopper_pearson(int(count), frames, confidence)}
 
 
 def curves_from_file(path) -> list[Curve]:
