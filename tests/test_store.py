@@ -22,7 +22,7 @@ def _other_code():
 
 
 def _counts(frames=10, fe=2):
-    return (frames, 5, 9, 3, 5, fe, 0, 20, 0.01, 1)
+    return (frames, 5, 9, 3, 5, fe, 0, 1, 20, 0.01, 1)  # COUNT_FIELDS order
 
 
 def test_roundtrip_and_reuse(tmp_path, hamming74):

@@ -36,15 +36,23 @@ def _thresholds(values) -> dict:
                    "degree distribution, as Eb/N0 at its design rate; repeatable.")
 @click.option("--no-uncoded", is_flag=True, help="Leave out the uncoded reference curve.")
 @click.option("--no-shannon", is_flag=True, help="Leave out the Shannon-limit line(s).")
+@click.option("--limits", "with_limits", is_flag=True,
+              help="FER panel: add the finite-length limits for each code's n and k "
+                   "(sphere packing 1959 on AWGN, normal approximation, RCU).")
+@click.option("--no-ml-bound", is_flag=True,
+              help="Leave out the ML lower bound counted in the simulation.")
 @click.option("--title", default=None, help="Figure title.")
 @click.option("--force", is_flag=True, help="Overwrite an existing figure file.")
 def command(sources, output, run, metric, lines, threshold_codes, no_uncoded, no_shannon,
-            title, force):
+            with_limits, no_ml_bound, title, force):
     """Draw BER and FER against Eb/N0 from SOURCES (stores, --json or --csv files).
 
     Several sources (codes, decoders) share one figure. Error bars are the
     confidence intervals; the uncoded BPSK curve 1/2 erfc(sqrt(Eb/N0)) and
-    the Shannon limit of each code rate are drawn for reference.
+    the Shannon limit of each code rate are drawn for reference. The FER
+    panel also shows the ML lower bound counted during the simulation (frames
+    where the decoder's valid output was at least as likely as the sent word)
+    and, with --limits, the finite-length limits of each code's n and k.
     """
     from ..plots.curves import check_figure_path, curves_from_file, curves_from_store, plot_curves
 
@@ -71,5 +79,6 @@ def command(sources, output, run, metric, lines, threshold_codes, no_uncoded, no
             curves += curves_from_file(src)
     metrics = ("ber", "fer") if metric == "both" else (metric,)
     plot_curves(curves, output, metrics=metrics, thresholds=extra, uncoded=not no_uncoded,
-                shannon=not no_shannon, title=title)
+                shannon=not no_shannon, title=title, ml_lower_bound=not no_ml_bound,
+                limits=with_limits, progress=lambda text: click.echo(text, err=True))
     click.echo(f"wrote {output} ({len(curves)} curves)")

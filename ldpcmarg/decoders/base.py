@@ -218,6 +218,8 @@ _REGISTRY: dict[str, tuple[str, str, str]] = {
               "Exact bitwise posteriors and ML by enumeration or syndrome trellis (small codes)."),
     "fw": ("frank_wolfe", "FrankWolfeDecoder",
            "Frank-Wolfe bitwise marginals (Bethe/TRW free energy) with an LP oracle."),
+    "osd": ("osd", "OSDDecoder",
+            "Ordered-statistics decoding of order 0..k (k = block-ML), optional list soft output."),
 }
 
 

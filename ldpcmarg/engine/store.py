@@ -46,7 +46,8 @@ from ..errors import StoreError
 
 __all__ = ["Store", "COUNT_FIELDS", "SCHEMA_VERSION"]
 
-SCHEMA_VERSION = 1
+#: 2 adds ``ml_lower_bound_frame_errors`` (version-1 stores are refused with a message).
+SCHEMA_VERSION = 2
 
 #: Integer/float count columns of a chunk or a result, in storage order.
 COUNT_FIELDS = (
@@ -57,6 +58,7 @@ COUNT_FIELDS = (
     "info_bit_errors_sq",
     "frame_errors",
     "undetected_errors",
+    "ml_lower_bound_frame_errors",
     "iterations",
     "seconds",
     "capped_frames",
@@ -301,7 +303,12 @@ class Store:
     def _count_select(self, table: str, alias: str = "") -> str:
         """The count columns of ``table`` for a SELECT (0 for columns an old store lacks)."""
         have = self._columns(table)
-        return ", ".join(alias + f if f in have else "0" for f in COUNT_FIELDS)
+        if self.meta().get("schema_version") == "1":
+            have.discard("ml_lower_bound_frame_errors")
+        # a store written before the ML lower bound was counted: unknown (None), not 0
+        missing = {f: ("NULL" if f == "ml_lower_bound_frame_errors" else "0")
+                   for f in COUNT_FIELDS}
+        return ", ".join(alias + f if f in have else missing[f] for f in COUNT_FIELDS)
 
     def meta(self) -> dict:
         """Store-level facts (code fingerprint, name, source, n, m, k)."""
@@ -480,7 +487,10 @@ class Store:
         return out
 
     def results(self, run_id: int | None = None) -> list[dict]:
-        """Counted results (one dict per run, point and decoder), ordered by run, decoder, SNR."""
+        """Counted results (one dict per run, point and decoder), ordered by run, decoder, SNR.
+
+        Version-1 stores (read-only use) give ``ml_lower_bound_frame_errors = None``.
+        """
         sql = (f"SELECT p.run_id, p.snr, r.decoder, {self._count_select('results', 'r.')}, "
                "r.chunks, r.stop, r.rule FROM results r JOIN points p ON p.id = r.point_id")
         args: tuple = ()

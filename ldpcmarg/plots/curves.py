@@ -53,6 +53,11 @@ class Curve:
     x, ber, fer : ndarray of shape (P,), float64
     ber_ci, fer_ci : ndarray of shape (P, 2), float64
         Lower and upper interval bounds.
+    n, k : int or None
+        Code length and dimension, when the source records them.
+    ml_lb, ml_lb_ci : ndarray of shape (P,) and (P, 2), float64, or None
+        Lower bound on the block-ML FER counted in the simulation and its
+        interval (None for sources written before it was counted).
     """
 
     label: str
@@ -63,6 +68,10 @@ class Curve:
     ber_ci: np.ndarray
     fer: np.ndarray
     fer_ci: np.ndarray
+    n: int | None = None
+    k: int | None = None
+    ml_lb: np.ndarray | None = None
+    ml_lb_ci: np.ndarray | None = None
 
 
 def uncoded_bpsk_ber(ebn0_db) -> np.ndarray:
@@ -93,7 +102,22 @@ def _records_to_curves(records: list[dict], prefix: str = "") -> list[Curve]:
             ber=np.array([r["ber"] for r in rs], dtype=np.float64),
             ber_ci=np.array([r["ber_ci"] for r in rs], dtype=np.float64).reshape(-1, 2),
             fer=np.array([r["fer"] for r in rs], dtype=np.float64),
-            fer_ci=np.array([r["fer_ci"] for r in rs], dtype=np.float64).reshape(-1, 2)))
+            fer_ci=np.array([r["fer_ci"] for r in rs], dtype=np.float64).reshape(-1, 2),
+            **_short_code_fields(rs)))
+    return out
+
+
+def _short_code_fields(rs: list[dict]) -> dict:
+    """n, k and the ML lower bound of grouped records (None where a source lacks them)."""
+    out: dict = {}
+    ns = {r.get("n") for r in rs}
+    ks = {r.get("k") for r in rs}
+    if len(ns) == 1 and len(ks) == 1 and None not in ns | ks:
+        out["n"], out["k"] = int(ns.pop()), int(ks.pop())
+    if all(r.get("ml_lb") is not None for r in rs):
+        out["ml_lb"] = np.array([r["ml_lb"] for r in rs], dtype=np.float64)
+        out["ml_lb_ci"] = np.array([r["ml_lb_ci"] for r in rs],
+                                   dtype=np.float64).reshape(-1, 2)
     return out
 
 
@@ -113,7 +137,8 @@ def curves_from_sweep(result, code_label: str | None = None) -> list[Curve]:
         kind, x = _x_of(p.snr_kind, p.snr, p.rate)
         recs.append({"label": f"{name}: {p.decoder}" if name else p.decoder, "x_kind": kind,
                      "rate": p.rate, "x": x, "ber": p.ber, "ber_ci": p.ber_ci, "fer": p.fer,
-                     "fer_ci": p.fer_ci})
+                     "fer_ci": p.fer_ci, "n": p.n, "k": p.k, "ml_lb": p.ml_lower_bound_fer,
+                     "ml_lb_ci": p.ml_lower_bound_fer_ci})
     return _records_to_curves(recs)
 
 
@@ -147,8 +172,20 @@ def curves_from_store(path, run: int | None = None, confidence: float = 0.95) ->
             "ber": r["info_bit_errors"] / (F * k), "fer": r["frame_errors"] / F,
             "ber_ci": stats.ber_interval(r["info_bit_errors"], r["info_bit_errors_sq"], F, k,
                                          confidence),
-            "fer_ci": stats.clopper_pearson(r["frame_errors"], F, confidence)})
+            "fer_ci": stats.clopper_pearson(r["frame_errors"], F, confidence),
+            "n": n, "k": k, **_store_ml_bound(r.get("ml_lower_bound_frame_errors"), F,
+                                              confidence)})
     return _records_to_curves(recs)
+
+
+def _store_ml_bound(count, frames: int, confidence: float) -> dict:
+    """ML-lower-bound rate and interval of a stored count (None when not counted)."""
+    from ..engine import stats
+
+    if count is None:
+        return {"ml_lb": None, "ml_lb_ci": None}
+    return {"ml_lb": count / frames,
+            "ml_lb_ci": stats.clopper_pearson(int(count), frames, confidence)}
 
 
 def curves_from_file(path) -> list[Curve]:
@@ -181,7 +218,9 @@ def curves_from_file(path) -> list[Curve]:
                 recs.append({"label": f"{name}: {p['decoder']}" if name else p["decoder"],
                              "x_kind": kind, "rate": rate, "x": float(x),
                              "ber": p["ber"], "ber_ci": p["ber_ci"], "fer": p["fer"],
-                             "fer_ci": p["fer_ci"]})
+                             "fer_ci": p["fer_ci"], "n": code.get("n"), "k": code.get("k"),
+                             "ml_lb": p.get("ml_lower_bound_fer"),
+                             "ml_lb_ci": p.get("ml_lower_bound_fer_ci")})
         except (KeyError, TypeError, ValueError) as exc:
             raise InputError(f"{path!r} is not a simulate --json file ({exc}).") from exc
         return _records_to_curves(recs)
@@ -198,7 +237,14 @@ def curves_from_file(path) -> list[Curve]:
             recs.append({"label": f"{r['code']}: {r['decoder']}", "x_kind": kind, "rate": rate,
                          "x": x, "ber": float(r["ber"]), "fer": float(r["fer"]),
                          "ber_ci": [float(r["ber_ci_lo"]), float(r["ber_ci_hi"])],
-                         "fer_ci": [float(r["fer_ci_lo"]), float(r["fer_ci_hi"])]})
+                         "fer_ci": [float(r["fer_ci_lo"]), float(r["fer_ci_hi"])],
+                         "n": int(r["n"]) if r.get("n") else None,
+                         "k": int(r["k"]) if r.get("k") else None,
+                         "ml_lb": float(r["ml_lower_bound_fer"])
+                         if r.get("ml_lower_bound_fer") else None,
+                         "ml_lb_ci": [float(r["ml_lower_bound_fer_ci_lo"]),
+                                      float(r["ml_lower_bound_fer_ci_hi"])]
+                         if r.get("ml_lower_bound_fer_ci_lo") else None})
     except (KeyError, TypeError, ValueError) as exc:
         raise InputError(f"{path!r} is not a simulate --csv file (missing or bad {exc}).") from exc
     return _records_to_curves(recs)
@@ -221,9 +267,24 @@ def _shannon_x(kind: str, rate: float) -> float | None:
     return None
 
 
+def _short_code_extras(ax, curves, kind, x_left, x_right, ml_lower_bound, limits, progress):
+    """Hook into :mod:`ldpcmarg.plots.limits` (ML lower bounds, finite-length limits)."""
+    from . import limits as extras
+
+    if ml_lower_bound:
+        extras.draw_ml_lower_bounds(ax, curves)
+    if limits:
+        sizes = [(c.n, c.k) for c in curves if c.n is not None and c.k is not None]
+        if not sizes:
+            raise InputError("Finite-length limits need the code's n and k, which these "
+                             "sources do not record; use a store, --json or --csv file.")
+        extras.draw_finite_length_limits(ax, kind, sizes, x_left, x_right, progress)
+
+
 def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict | None = None,
                 uncoded: bool = True, shannon: bool = True, title: str | None = None,
-                axes=None):
+                axes=None, ml_lower_bound: bool = True, limits: bool = False,
+                progress=None):
     """Draw BER and/or FER curves with confidence-interval error bars.
 
     Parameters
@@ -243,6 +304,14 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
     title : str, optional
     axes : sequence of matplotlib Axes, optional
         Draw into these (one per metric) instead of a new figure.
+    ml_lower_bound : bool
+        FER panel: draw the counted ML lower bound of curves that carry one.
+    limits : bool
+        FER panel: draw the finite-length limits (sphere packing, normal
+        approximation, RCU) for each code's n and k
+        (:mod:`ldpcmarg.plots.limits`).
+    progress : callable, optional
+        Receives a line of text before each slow step (the limit curves).
 
     Returns
     -------
@@ -302,6 +371,9 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
             if (~pos).any():  # no errors seen: show the upper confidence bound only
                 ax.plot(c.x[~pos], ci[~pos, 1], "v", color=color, ms=5,
                         label=None if pos.any() else c.label + " (upper bound)")
+        if metric == "fer" and (ml_lower_bound or limits):
+            _short_code_extras(ax, curves, kind, x_left, x_right, ml_lower_bound, limits,
+                               progress)
         if uncoded:
             if kind == "ebn0_db":
                 u = uncoded_bpsk_ber(grid)
