@@ -28,7 +28,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "threshold": ("threshold", "Density-evolution BP threshold of a degree distribution."),
     "posteriors": ("posteriors", "Per-bit posteriors (soft outputs) for given channel outputs."),
     "compare": ("compare", "Compare decoders on the same frames: errors, soft-output quality."),
-    "envinfo": ("envinfo", "Versions and machine facts for bug reports."),
+    "versions": ("versions", "Versions and machine facts for bug reports."),
 }
 
 

@@ -31,6 +31,7 @@ from typing import Any
 import numpy as np
 from scipy.special import expit
 
+from .._text import plural
 from ..decoders.base import Decoder, make_decoder
 from ..errors import InputError, LdpcmargError
 from ..link.channels import make_channel
@@ -262,7 +263,7 @@ class CompareResult:
                 f"{'iter':>6} {'ms/frame':>9}")
         lines = [
             f"code {self.code.get('name')} (n={self.code.get('n')}, k={self.code.get('k')}), "
-            f"channel {self.channel}, {self.frames} frames per point, seed {self.seed}",
+            f"channel {self.channel}, {plural(self.frames, 'frame')} per point, seed {self.seed}",
             f"reference for posterior errors: {self.reference}"
             + (f" ({self.reference_note})" if self.reference_note else ""),
             f"SNR axis: {self.snr_label}; KL = KL(reference || decoder) per bit, in bits; "

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import click
 
+from .._text import plural
 from ..errors import InputError
 
 
@@ -65,4 +66,4 @@ def command(sources, output, run, metric, lines, threshold_codes, no_uncoded, no
     metrics = ("ber", "fer") if metric == "both" else (metric,)
     plot_curves(curves, output, metrics=metrics, thresholds=extra, uncoded=not no_uncoded,
                 shannon=not no_shannon, title=title)
-    click.echo(f"wrote {output} ({len(curves)} curves)")
+    click.echo(f"wrote {output} ({plural(len(curves), 'curve')})")

@@ -6,6 +6,7 @@ import json
 
 import click
 
+from .._text import plural
 from ..errors import InputError
 
 _METHOD_NAMES = {
@@ -61,11 +62,12 @@ def _ensemble(code, regular, var_edges, check_edges, var_nodes, check_nodes):
 def _settings_text(res) -> str:
     s = res.settings
     if res.method == "discretized":
-        return (f"step {s['step']:g}, LLR range +-{s['llr_max']:g}, at most {s['max_iter']} "
-                f"iterations, success at error probability <= {s['target']:g}")
+        return (f"step {s['step']:g}, LLR range +-{s['llr_max']:g}, at most "
+                f"{plural(s['max_iter'], 'iteration')}, success at error probability "
+                f"<= {s['target']:g}")
     if res.method == "gaussian":
-        return f"phi by {s['phi']}, at most {s['max_iter']} iterations"
-    return (f"at most {s['max_iter']} iterations, success at erasure probability "
+        return f"phi by {s['phi']}, at most {plural(s['max_iter'], 'iteration')}"
+    return (f"at most {plural(s['max_iter'], 'iteration')}, success at erasure probability "
             f"<= {s['target']:g}")
 
 
@@ -107,7 +109,8 @@ def format_result(res) -> str:
                 lines.append(f"gap             {res.gap_db:.4f} dB")
     if "note" in res.settings:
         lines.append(f"note            {res.settings['note']}")
-    lines.append(f"iterations      {res.iterations} at the largest converging parameter")
+    lines.append(f"iterations      {plural(res.iterations, 'iteration')} at the largest "
+                 "converging parameter")
     lines.append(f"time            {res.seconds:.2f} s")
     return "\n".join(lines)
 
