@@ -138,7 +138,9 @@ class DecoderPoint:
     legends, ``options`` every validated option of the decoder. Error rates
     count all ``n`` bits; ``mean_kl_bits`` is ``KL(reference || decoder)``
     per bit in bits; ``mutual_information`` is in bits per bit;
-    ``time_per_frame_s`` is wall-clock seconds.
+    ``time_per_frame_s`` is wall-clock seconds; ``bit_errors_sq`` is the sum
+    over frames of the squared per-frame bit-error count (for a BER interval
+    with frames as the sampling unit, :func:`ldpcmarg.engine.stats.ber_interval`).
     """
 
     decoder: str
@@ -164,10 +166,12 @@ class DecoderPoint:
     info_summary: dict[str, float] = field(default_factory=dict)
     soft: bool = True
     options: dict[str, Any] = field(default_factory=dict)
+    bit_errors_sq: int = 0
 
     def to_dict(self) -> dict:
         d = {k: getattr(self, k) for k in (
-            "decoder", "label", "snr", "frames", "n", "bit_errors", "frame_errors", "ber",
+            "decoder", "label", "snr", "frames", "n", "bit_errors", "bit_errors_sq",
+            "frame_errors", "ber",
             "fer", "valid_fraction", "mean_abs_error", "max_abs_error", "mean_kl_bits", "ece",
             "mutual_information", "mi_stderr", "mean_iterations", "max_iterations",
             "time_per_frame_s", "info_summary", "soft", "options")}
@@ -520,7 +524,8 @@ def _measure(label, spec, snr, cw, res, ref_p1, ref_llr, dt, num_bins, binning,
     bits = np.asarray(res.bits, dtype=np.uint8)
     wrong = bits != cw
     bit_errors = int(wrong.sum())
-    frame_errors = int(wrong.any(axis=1).sum())
+    per_frame = wrong.sum(axis=1).astype(np.int64)
+    frame_errors = int((per_frame > 0).sum())
     it = np.asarray(res.iterations, dtype=np.float64).reshape(F)
     soft = res.posterior_llr is not None
     mae = mxe = kl = ece = mi = mi_se = None
@@ -543,4 +548,5 @@ def _measure(label, spec, snr, cw, res, ref_p1, ref_llr, dt, num_bins, binning,
         mutual_information=mi, mi_stderr=mi_se, calibration=cal,
         mean_iterations=float(it.mean()), max_iterations=int(it.max()),
         time_per_frame_s=float(dt), info_summary=_info_summary(res.info, F), soft=soft,
+        bit_errors_sq=int((per_frame * per_frame).sum()),
     )
