@@ -433,7 +433,7 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
             else:
                 for j, k in enumerate(ks):
                     ax.plot(grid, uncoded_fer(u, k), color="k", lw=1,
-                            ls=("--", (0, (5, 2, 1, 2)), ":")[j % 3],
+                            ls=((0, (6, 2, 1, 2)), (0, (2, 2)), (0, (8, 2)))[j % 3],
                             label=f"{lab}, FER of {k} bits")
         for r, sx in shannon_x.items():
             ax.axvline(sx, color="0.4", ls=":", lw=1.2,
