@@ -98,8 +98,8 @@ def specs():
          "peg(n=256, m=128, var_degrees=3, seed=0)", 3000,
          "Demo code for an invented scenario: 16-byte telemetry records of a fictional "
          "ocean-drifter buoy fleet, one record per rate-1/2 codeword.",
-         "Invented demo scenario, not a real system: the fictional 'Saltmarsh Current "
-         "Survey' tracks sixty drifting buoys that report a 128-bit record (position, "
+         "Invented demo scenario, not a real system: the fictional 'Wavetally Drifter "
+         "Cooperative' tracks sixty drifting buoys that report a 128-bit record (position, "
          "sea-surface temperature, battery voltage, sequence number) in short bursts over "
          "a weak uplink; each record is one codeword of this (3, 6)-regular PEG code."),
     ]

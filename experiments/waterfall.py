@@ -132,8 +132,8 @@ def main(argv=None) -> int:
             thr = None
         thresholds = {} if thr is None else {
             f"BP threshold ({'Gaussian approx.' if args.quick else 'density evolution'})": thr}
-        plot_curves(curves, args.out / f"{name}.png", thresholds=thresholds,
-                    title=f"{name} (n={code.n}, k={code.k}), BPSK over AWGN")
+        # default title: code, n, k, channel and iteration cap
+        plot_curves(curves, args.out / f"{name}.png", thresholds=thresholds)
     with (args.out / "waterfall.csv").open("w", newline="") as fh:
         w = csv.DictWriter(fh, fieldnames=list(rows[0]))
         w.writeheader()

@@ -227,3 +227,32 @@ def is_tree(H: np.ndarray) -> bool:
                 return False
             parent[a] = b
     return True
+
+
+def gallager_naive(H: np.ndarray, y: np.ndarray, thresh: np.ndarray, iterations: int):
+    """Gallager A/B on one hard word by dense matrices, no early stop, no best-word keeping.
+
+    Independent of the kernel's edge bookkeeping: messages live in an m x n
+    array indexed by (check, bit). ``thresh[i]``: disagreeing extrinsic check
+    messages that make bit i send ``1 - y_i``. Returns the decisions after each
+    iteration, shape (iterations + 1, n), row 0 = ``y`` (Gallager 1963).
+    """
+    H = np.asarray(H, dtype=np.int64)
+    y = np.asarray(y, dtype=np.int64)
+    deg = H.sum(axis=0)
+    v2c = H * y[None, :]
+    out = [y.copy()]
+    for _ in range(iterations):
+        total = (v2c.sum(axis=1) % 2)[:, None]
+        c2v = H * ((total + v2c) % 2)          # XOR of the other bits of the check
+        dis = (H * (c2v != y[None, :])).sum(axis=0)  # check messages disagreeing with y
+        x = np.where(2 * dis > deg + 1, 1 - y, y)
+        ext = dis[None, :] - H * (c2v != y[None, :])
+        v2c = H * np.where(ext >= thresh[None, :], 1 - y[None, :], y[None, :])
+        out.append(x)
+    return np.array(out)
+
+
+def unsatisfied_checks(H: np.ndarray, x: np.ndarray) -> np.ndarray:
+    """Number of unsatisfied checks of each word in x (shape (F, n) or (n,)), dense."""
+    return ((np.atleast_2d(x).astype(np.int64) @ np.asarray(H, dtype=np.int64).T) % 2).sum(axis=1)

@@ -118,3 +118,29 @@ def test_inspect_without_search_says_so(capsys):
     assert "minimum distance       not computed" in out
     assert "bit degrees            3: 504 (100.0% of nodes, 100.0% of edges)" in out
     assert "check degrees          6: 252" in out
+
+
+def test_inspect_counts_take_the_right_number(tmp_path, capsys):
+    # Two checks sharing two bits close exactly one 4-cycle (bits 0, 1 and both checks).
+    p = tmp_path / "one-cycle.txt"
+    p.write_text("ldpcmarg-checks n=4 m=2\n0 1 2\n0 1 3\n")
+    status, out, _ = run(["inspect", str(p)], capsys)
+    assert status == 0
+    assert "1 cycle of length 4" in out and "1 cycles" not in out
+
+
+def test_plural_helper():
+    from ldpcmarg._text import plural
+
+    assert [plural(c, "frame") for c in (0, 1, 2)] == ["0 frames", "1 frame", "2 frames"]
+    assert plural(1, "matrix", "matrices") == "1 matrix"
+    assert plural(5, "matrix", "matrices") == "5 matrices"
+
+
+def test_versions_command_replaces_the_old_name(capsys):
+    status, out, _ = run(["versions", "--json"], capsys)
+    assert status == 0
+    rep = json.loads(out)
+    assert rep["numpy"] and rep["ldpcmarg"]
+    status, _, err = run(["envinfo"], capsys)
+    assert status == 2 and "No such command" in err

@@ -31,6 +31,7 @@ from typing import Any
 import numpy as np
 from scipy.special import expit
 
+from .._text import plural
 from ..decoders.base import Decoder, make_decoder
 from ..errors import InputError, LdpcmargError
 from ..link.channels import make_channel
@@ -137,7 +138,9 @@ class DecoderPoint:
     legends, ``options`` every validated option of the decoder. Error rates
     count all ``n`` bits; ``mean_kl_bits`` is ``KL(reference || decoder)``
     per bit in bits; ``mutual_information`` is in bits per bit;
-    ``time_per_frame_s`` is wall-clock seconds.
+    ``time_per_frame_s`` is wall-clock seconds; ``bit_errors_sq`` is the sum
+    over frames of the squared per-frame bit-error count (for a BER interval
+    with frames as the sampling unit, :func:`ldpcmarg.engine.stats.ber_interval`).
     """
 
     decoder: str
@@ -163,10 +166,12 @@ class DecoderPoint:
     info_summary: dict[str, float] = field(default_factory=dict)
     soft: bool = True
     options: dict[str, Any] = field(default_factory=dict)
+    bit_errors_sq: int = 0
 
     def to_dict(self) -> dict:
         d = {k: getattr(self, k) for k in (
-            "decoder", "label", "snr", "frames", "n", "bit_errors", "frame_errors", "ber",
+            "decoder", "label", "snr", "frames", "n", "bit_errors", "bit_errors_sq",
+            "frame_errors", "ber",
             "fer", "valid_fraction", "mean_abs_error", "max_abs_error", "mean_kl_bits", "ece",
             "mutual_information", "mi_stderr", "mean_iterations", "max_iterations",
             "time_per_frame_s", "info_summary", "soft", "options")}
@@ -264,7 +269,7 @@ class CompareResult:
                 f"{'iter':>6} {'ms/frame':>9}")
         lines = [
             f"code {self.code.get('name')} (n={self.code.get('n')}, k={self.code.get('k')}), "
-            f"channel {self.channel}, {self.frames} frames per point, seed {self.seed}",
+            f"channel {self.channel}, {plural(self.frames, 'frame')} per point, seed {self.seed}",
             f"reference for posterior errors: {self.reference}"
             + (f" ({self.reference_note})" if self.reference_note else ""),
             f"SNR axis: {self.snr_label}; KL = KL(reference || decoder) per bit, in bits; "
@@ -544,7 +549,8 @@ def _measure(label, spec, snr, cw, res, ref_p1, ref_llr, dt, num_bins, binning,
     bits = np.asarray(res.bits, dtype=np.uint8)
     wrong = bits != cw
     bit_errors = int(wrong.sum())
-    frame_errors = int(wrong.any(axis=1).sum())
+    per_frame = wrong.sum(axis=1).astype(np.int64)
+    frame_errors = int((per_frame > 0).sum())
     it = np.asarray(res.iterations, dtype=np.float64).reshape(F)
     soft = res.posterior_llr is not None
     mae = mxe = kl = ece = mi = mi_se = None
@@ -567,4 +573,5 @@ def _measure(label, spec, snr, cw, res, ref_p1, ref_llr, dt, num_bins, binning,
         mutual_information=mi, mi_stderr=mi_se, calibration=cal,
         mean_iterations=float(it.mean()), max_iterations=int(it.max()),
         time_per_frame_s=float(dt), info_summary=_info_summary(res.info, F), soft=soft,
+        bit_errors_sq=int((per_frame * per_frame).sum()),
     )

@@ -66,12 +66,17 @@ __all__ = [
     "biawgn_shannon_sigma",
     "compute_threshold",
     "METHODS",
+    "GallagerEvolution",
+    "gallager_thresholds_by_degree",
+    "gallager_bsc_evolution",
+    "gallager_bsc_threshold",
 ]
 
 #: Methods available per channel; the first one is the default.
 METHODS: dict[str, tuple[str, ...]] = {
     "bec": ("exact",),
     "awgn": ("discretized", "gaussian"),
+    "bsc": ("gallager-b", "gallager-a"),
 }
 
 
@@ -377,11 +382,12 @@ class ThresholdResult:
 
     Attributes
     ----------
-    channel : {"bec", "awgn"}
-    method : {"exact", "discretized", "gaussian"}
-    parameter : {"epsilon", "sigma"}
+    channel : {"bec", "awgn", "bsc"}
+    method : {"exact", "discretized", "gaussian", "gallager-a", "gallager-b"}
+    parameter : {"epsilon", "sigma", "p"}
         Name of the channel parameter ``threshold`` refers to (BEC erasure
-        probability, AWGN noise standard deviation per real dimension, Es = 1).
+        probability, AWGN noise standard deviation per real dimension, Es = 1,
+        BSC crossover probability).
     threshold : float
         ``eps*`` or ``sigma*``: the decoder succeeds (in the limit of long
         codes) for channel parameters below it.
@@ -392,7 +398,7 @@ class ThresholdResult:
         ``sigma**2 = 1 / (2 R 10**(EbN0/10))``.
     capacity_limit : float
         Channel parameter at which capacity equals ``R`` (BEC: ``1 - R``;
-        BI-AWGN: Shannon-limit ``sigma``).
+        BI-AWGN: Shannon-limit ``sigma``; BSC: ``p`` with ``1 - h(p) = R``).
     capacity_ebn0_db : float or None
         Shannon-limit ``Eb/N0`` (dB) for rate ``R`` (AWGN only).
     gap_db : float or None
@@ -437,6 +443,11 @@ def _finish(dd: DegreeDistribution, channel, method, parameter, thr, iters, tol,
     R = dd.design_rate
     if channel == "bec":
         limit = 1.0 - R
+        ebn0 = cap_ebn0 = gap = None
+    elif channel == "bsc":
+        from .capacity import bsc_shannon_limit_p
+
+        limit = bsc_shannon_limit_p(R) if 0 < R < 1 else float("nan")
         ebn0 = cap_ebn0 = gap = None
     else:
         limit = biawgn_shannon_sigma(R) if 0 < R < 1 else float("nan")
@@ -1380,6 +1391,256 @@ def awgn_threshold_gaussian(dd, *, tol: float = 1e-5, max_iter: int = 20000,
 
 
 # ======================================================================
+# BSC: Gallager A / B density evolution (binary messages, closed form)
+# ======================================================================
+def gallager_thresholds_by_degree(dd, rule: str = "b", b: int | None = None) -> np.ndarray:
+    """Flip threshold ``t_d`` per variable degree ``d`` (array indexed by degree).
+
+    A degree-d bit sends the opposite of its channel value when at least
+    ``t_d`` of its ``d - 1`` extrinsic check messages disagree with it. Rule
+    ``"a"``: ``t_d = d - 1``; rule ``"b"``: ``t_d = b`` capped at ``d - 1``, or,
+    with ``b`` None, ``min(ceil(d/2) + 1, d - 1)``. Degree-1 bits
+    get ``t_1 = 1``, which they cannot reach. The same rule as
+    :mod:`ldpcmarg.decoders.hard_decision`.
+    """
+    dd = _as_dd(dd)
+    if rule not in ("a", "b"):
+        raise InputError(f"The Gallager rule must be 'a' or 'b'; got {rule!r}.")
+    d = np.arange(dd.lam.size, dtype=np.int64)
+    if rule == "a":
+        t = d - 1
+    elif b is None:
+        from ..decoders.hard_decision import gallager_b_default_threshold
+
+        t = gallager_b_default_threshold(d)
+    else:
+        b = _check_positive("b", b, low=0.5, integer=True)
+        dmax = int(np.flatnonzero(dd.lam).max())
+        if b > max(dmax - 1, 1):
+            raise InputError(
+                f"The 'b' option of Gallager B must be at most d - 1 = {max(dmax - 1, 1)} "
+                f"for this ensemble (largest bit degree {dmax}); got {b}."
+            )
+        t = np.minimum(b, d - 1)
+    return np.ascontiguousarray(np.maximum(t, 1), dtype=np.int64)
+
+
+@nb.njit(**NUMBA_OPTS)
+def _binom_tail(k, q, t):
+    """``P(Binomial(k, q) >= t)`` for small integer k (direct sum)."""
+    if t <= 0:
+        return 1.0
+    if t > k:
+        return 0.0
+    s = 0.0
+    c = 1.0  # C(k, j), built up from j = 0
+    for j in range(k + 1):
+        if j >= t:
+            s += c * q**j * (1.0 - q) ** (k - j)
+        c = c * (k - j) / (j + 1)
+    return s
+
+
+@nb.njit(**NUMBA_OPTS)
+def _gallager_check_error(rho, x):
+    """Check-to-bit message error probability ``(1 - rho(1 - 2x)) / 2``."""
+    z = 1.0 - 2.0 * x
+    r = 0.0
+    for d in range(rho.size - 1, 0, -1):
+        r = r * z + rho[d]
+    return 0.5 * (1.0 - r)
+
+
+@nb.njit(**NUMBA_OPTS)
+def _gallager_var_error(lam, thresh, p, q):
+    """Bit-to-check message error probability given check-message error ``q``.
+
+    ``sum_d lam_d [p P(Bin(d-1, 1-q) < t_d) + (1-p) P(Bin(d-1, q) >= t_d)]``.
+    """
+    v = 0.0
+    for d in range(1, lam.size):
+        if lam[d] == 0.0:
+            continue
+        k = d - 1
+        stay_wrong = 1.0 - _binom_tail(k, 1.0 - q, thresh[d])
+        go_wrong = _binom_tail(k, q, thresh[d])
+        v += lam[d] * (p * stay_wrong + (1.0 - p) * go_wrong)
+    return v
+
+
+@nb.njit(**NUMBA_OPTS)
+def _gallager_decision_error(node_frac, p, q):
+    """Bit-decision error: majority vote of channel value and d check messages (tie: channel)."""
+    v = 0.0
+    for d in range(node_frac.size):
+        if node_frac[d] == 0.0:
+            continue
+        # channel wrong: the decision is right only when more than (d+1)/2 of the
+        # d check messages are right; channel right: wrong when more than (d+1)/2 are wrong
+        need = (d + 1) // 2 + 1
+        stay_wrong = 1.0 - _binom_tail(d, 1.0 - q, need)
+        go_wrong = _binom_tail(d, q, need)
+        v += node_frac[d] * (p * stay_wrong + (1.0 - p) * go_wrong)
+    return v
+
+
+@nb.njit(**NUMBA_OPTS)
+def _gallager_kernel(lam, rho, thresh, p, max_iter, target, stall):
+    """Run ``x <- f(p, q(x))`` from ``x = p``; return ``(status, iterations, x)``.
+
+    Status 1: ``x <= target``; 0: stalled (the decrease fell below ``stall * x``)
+    or grew; -1: iteration cap (counted as failure).
+    """
+    x = p
+    for it in range(1, max_iter + 1):
+        xn = _gallager_var_error(lam, thresh, p, _gallager_check_error(rho, x))
+        if xn <= target:
+            return 1, it, xn
+        if x - xn <= stall * x:
+            return 0, it, xn
+        x = xn
+    return -1, max_iter, x
+
+
+@dataclass
+class GallagerEvolution:
+    """Density evolution of Gallager A/B on the BSC, iteration by iteration.
+
+    Attributes
+    ----------
+    p : float
+        Crossover probability of the BSC.
+    message_error : ndarray of shape (L + 1,), float64
+        ``x_l``: probability that a bit-to-check message is wrong after ``l``
+        iterations (``x_0 = p``).
+    check_error : ndarray of shape (L + 1,), float64
+        ``q_l = (1 - rho(1 - 2 x_l)) / 2``: check-to-bit messages computed from ``x_l``.
+    decision_error : ndarray of shape (L + 1,), float64
+        Bit-decision error probability after ``l`` iterations (``[0] = p``, the
+        channel's own decisions; ``[l]`` uses ``q_{l-1}``), averaged over bits.
+    thresholds : ndarray of int64
+        Flip threshold ``t_d`` per variable degree (index = degree).
+    """
+
+    p: float
+    message_error: np.ndarray
+    check_error: np.ndarray
+    decision_error: np.ndarray
+    thresholds: np.ndarray
+
+
+def gallager_bsc_evolution(dd, p: float, *, rule: str = "b", b: int | None = None,
+                           max_iter: int = 100) -> GallagerEvolution:
+    """Density evolution of Gallager's algorithm A or B on BSC(p).
+
+    For a tree-like neighbourhood the messages are binary and the recursion is
+    closed form (Gallager 1963; Richardson & Urbanke, *Modern Coding Theory*,
+    2008, sec. 4.10; written here for edge-perspective ``lambda``, ``rho``):
+
+    ``q_l = (1 - rho(1 - 2 x_l)) / 2``,
+    ``x_{l+1} = sum_d lambda_d [p P(Bin(d-1, 1-q_l) < t_d) + (1-p) P(Bin(d-1, q_l) >= t_d)]``,
+
+    which for a regular (dv, dc) ensemble and Gallager A (``t = dv - 1``) is
+    ``x_{l+1} = p - p ((1 + (1-2x_l)^(dc-1))/2)^(dv-1) + (1-p) ((1 - (1-2x_l)^(dc-1))/2)^(dv-1)``.
+
+    Parameters
+    ----------
+    dd : DegreeDistribution, ParityCheckCode or (lambda, rho) pair
+    p : float
+        Crossover probability in [0, 1/2].
+    rule : {"a", "b"}
+    b : int, optional
+        Gallager-B threshold (see :func:`gallager_thresholds_by_degree`).
+    max_iter : int
+        Number of iterations ``L`` to evolve.
+
+    Returns
+    -------
+    GallagerEvolution
+    """
+    dd = _as_dd(dd)
+    if not (isinstance(p, int | float | np.floating) and 0.0 <= float(p) <= 0.5):
+        raise InputError(f"The crossover probability must be in [0, 1/2]; got {p!r}.")
+    p = float(p)
+    max_iter = _check_positive("max_iter", max_iter, integer=True)
+    thr = gallager_thresholds_by_degree(dd, rule, b)
+    lam = np.ascontiguousarray(dd.lam, dtype=np.float64)
+    rho = np.ascontiguousarray(dd.rho, dtype=np.float64)
+    node = np.ascontiguousarray(dd.var_node_fractions, dtype=np.float64)
+    xs = np.empty(max_iter + 1)
+    qs = np.empty(max_iter + 1)
+    ds = np.empty(max_iter + 1)
+    xs[0], ds[0] = p, p
+    for it in range(max_iter + 1):
+        qs[it] = _gallager_check_error(rho, xs[it])
+        if it < max_iter:
+            xs[it + 1] = _gallager_var_error(lam, thr, p, qs[it])
+            ds[it + 1] = _gallager_decision_error(node, p, qs[it])
+    return GallagerEvolution(p=p, message_error=xs, check_error=qs, decision_error=ds,
+                             thresholds=thr)
+
+
+def gallager_bsc_threshold(dd, *, rule: str = "b", b: int | None = None, tol: float = 1e-7,
+                           max_iter: int = 100_000, target: float = 1e-12) -> ThresholdResult:
+    """Threshold ``p*`` of Gallager A or B on the BSC by density evolution.
+
+    Bisection on ``p`` in (0, 1/2): a trial succeeds when the message error
+    probability of :func:`gallager_bsc_evolution` falls to ``target``; it fails
+    when the recursion stalls at a non-zero fixed point, grows, or reaches
+    ``max_iter``. ``b`` is a fixed threshold for every iteration (Gallager's
+    variant that re-optimises ``b`` per iteration is not offered).
+
+    Parameters
+    ----------
+    dd : DegreeDistribution, ParityCheckCode or (lambda, rho) pair
+    rule : {"a", "b"}
+    b : int, optional
+        Gallager-B threshold; default ``min(ceil(d/2) + 1, d - 1)`` per degree.
+    tol : float
+        Final bracket width.
+    max_iter : int
+        Iteration cap per trial.
+    target : float
+        Message error probability counted as convergence to zero.
+
+    Returns
+    -------
+    ThresholdResult
+        ``channel = "bsc"``, ``method = "gallager-a"`` or ``"gallager-b"``,
+        ``parameter = "p"``; ``capacity_limit`` is the BSC crossover probability
+        at which capacity equals the design rate.
+
+    Examples
+    --------
+    >>> res = gallager_bsc_threshold(DegreeDistribution.regular(3, 6), rule="a")
+    >>> round(res.threshold, 4)
+    0.0394
+    """
+    t0 = time.perf_counter()
+    dd = _as_dd(dd)
+    tol = _check_positive("tol", tol, high=0.1)
+    max_iter = _check_positive("max_iter", max_iter, integer=True)
+    target = _check_positive("target", target, high=1e-3)
+    thr = gallager_thresholds_by_degree(dd, rule, b)
+    lam = np.ascontiguousarray(dd.lam, dtype=np.float64)
+    rho = np.ascontiguousarray(dd.rho, dtype=np.float64)
+    capped = [0]
+
+    def ok(p):
+        st, it, _ = _gallager_kernel(lam, rho, thr, p, max_iter, target, 1e-15)
+        capped[0] += st == -1
+        return st == 1, it
+
+    lo, hi, it = _bisect(ok, 0.0, 0.5, tol)
+    settings = {"max_iter": max_iter, "target": target, "tol": tol,
+                "capped_trials": int(capped[0]),
+                "flip_thresholds": {int(d): int(thr[d]) for d in np.flatnonzero(dd.lam)}}
+    if rule == "b" and b is not None:
+        settings["b"] = int(b)
+    return _finish(dd, "bsc", f"gallager-{rule}", "p", lo, it, hi - lo, settings, t0)
+
+
+# ======================================================================
 # BI-AWGN Shannon limit (from ldpcmarg.analysis.capacity)
 # ======================================================================
 @lru_cache(maxsize=256)
@@ -1407,21 +1668,35 @@ def compute_threshold(dd, channel: str = "bec", method: str | None = None,
     Parameters
     ----------
     dd : DegreeDistribution, ParityCheckCode or (lambda, rho) pair
-    channel : {"bec", "awgn"}
-    method : {"exact", "discretized", "gaussian"}, optional
-        Default: ``"exact"`` for the BEC, ``"discretized"`` for the AWGN channel.
+    channel : {"bec", "awgn", "bsc"}
+    method : {"exact", "discretized", "gaussian", "gallager-a", "gallager-b"}, optional
+        Default: ``"exact"`` for the BEC, ``"discretized"`` for the AWGN
+        channel, ``"gallager-b"`` for the BSC (the BSC has only the Gallager
+        A/B decoders here, not BP).
     **options
-        Passed to :func:`bec_threshold`, :func:`awgn_threshold_discretized`
-        or :func:`awgn_threshold_gaussian`.
+        Passed to :func:`bec_threshold`, :func:`awgn_threshold_discretized`,
+        :func:`awgn_threshold_gaussian` or :func:`gallager_bsc_threshold`.
     """
     if channel not in METHODS:
-        raise InputError(f"Unknown channel {channel!r} for thresholds; accepted: bec, awgn.")
+        raise InputError(
+            f"Unknown channel {channel!r} for thresholds; accepted: {', '.join(METHODS)}."
+        )
     method = method or METHODS[channel][0]
     if method not in METHODS[channel]:
         raise InputError(
             f"Method {method!r} is not available for the {channel} channel; "
             f"accepted: {', '.join(METHODS[channel])}."
         )
+    if channel == "bsc":
+        allowed = {"b", "tol", "max_iter", "target"}
+        unknown = sorted(set(options) - allowed)
+        if unknown or (method == "gallager-a" and "b" in options):
+            bad = unknown[0] if unknown else "b"
+            raise InputError(
+                f"The {method} bsc threshold has no option {bad!r}; accepted: "
+                f"{', '.join(sorted(allowed - ({'b'} if method == 'gallager-a' else set())))}."
+            )
+        return gallager_bsc_threshold(dd, rule=method[-1], **options)
     fn = {("bec", "exact"): bec_threshold,
           ("awgn", "discretized"): awgn_threshold_discretized,
           ("awgn", "gaussian"): awgn_threshold_gaussian}[(channel, method)]

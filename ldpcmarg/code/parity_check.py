@@ -19,6 +19,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from .._settings import DEFAULT_MAX_CHECK_DEGREE, NUMBA_OPTS
+from .._text import plural
 from ..errors import InputError
 from . import gf2
 
@@ -627,7 +628,8 @@ class ParityCheckCode:
         w, witness = gf2.information_set_search(self.H, budget=int(budget), seed=int(seed),
                                                 method=method)
         return MinimumDistance(
-            int(w), False, f"information-set search ({method}), {budget} sets, seed {seed}",
+            int(w), False,
+            f"information-set search ({method}), {plural(budget, 'set')}, seed {seed}",
             witness)
 
     # ------------------------------------------------------------- operations

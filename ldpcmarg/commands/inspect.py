@@ -7,6 +7,7 @@ import json
 import click
 import numpy as np
 
+from .._text import plural
 from ..code.io import load_code, shipped_codes
 from ..errors import InputError
 
@@ -70,7 +71,7 @@ def format_report(rep: dict) -> str:
         dmin = (f"{dm['value']} (exact; {dm['method']})" if dm["exact"]
                 else f"<= {dm['value']} (upper bound; {dm['method']})")
     g = rep["girth"]
-    girth = f"{g} ({rep['shortest_cycles']} cycles of length {g})" if g else \
+    girth = f"{g} ({plural(rep['shortest_cycles'], 'cycle')} of length {g})" if g else \
         "none (the Tanner graph has no cycle)"
     deg = rep["degrees"]
     rows = [

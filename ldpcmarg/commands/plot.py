@@ -2,8 +2,11 @@
 
 from __future__ import annotations
 
+import math
+
 import click
 
+from .._text import plural
 from ..errors import InputError
 from ._outputs import Outputs
 
@@ -30,10 +33,13 @@ def _thresholds(values) -> dict:
 @click.option("--metric", type=click.Choice(["both", "ber", "fer"]), default="both",
               show_default=True, help="Panels to draw.")
 @click.option("--line", "lines", multiple=True, metavar="LABEL=X",
-              help="Extra vertical line, e.g. a density-evolution threshold in dB; repeatable.")
+              help="Extra vertical line at X in the unit of the x axis (e.g. a threshold in "
+                   "dB); the legend adds the value. Repeatable.")
 @click.option("--threshold", "threshold_codes", multiple=True, metavar="CODE",
               help="Draw the BI-AWGN BP threshold (discretised density evolution) of CODE's "
-                   "degree distribution, as Eb/N0 at its design rate; repeatable.")
+                   "degree distribution, as Eb/N0 (or Es/N0) at its design rate; repeatable.")
+@click.option("--x-axis", "x_axis", type=click.Choice(["ebn0", "esn0"]), default="ebn0",
+              show_default=True, help="AWGN results against Eb/N0 or Es/N0 (dB).")
 @click.option("--no-uncoded", is_flag=True, help="Leave out the uncoded reference curve.")
 @click.option("--no-shannon", is_flag=True, help="Leave out the Shannon-limit line(s).")
 @click.option("--limits", "with_limits", is_flag=True,
@@ -41,18 +47,22 @@ def _thresholds(values) -> dict:
                    "(sphere packing 1959 on AWGN, normal approximation, RCU).")
 @click.option("--no-ml-bound", is_flag=True,
               help="Leave out the ML lower bound counted in the simulation.")
-@click.option("--title", default=None, help="Figure title.")
+@click.option("--title", default=None,
+              help="Figure title [default: code, n, k, channel and iteration cap].")
 @click.option("--force", is_flag=True, help="Overwrite an existing figure file.")
-def command(sources, output, run, metric, lines, threshold_codes, no_uncoded, no_shannon,
-            with_limits, no_ml_bound, title, force):
+def command(sources, output, run, metric, lines, threshold_codes, x_axis, no_uncoded,
+            no_shannon, with_limits, no_ml_bound, title, force):
     """Draw BER and FER against Eb/N0 from SOURCES (stores, --json or --csv files).
 
-    Several sources (codes, decoders) share one figure. Error bars are the
-    confidence intervals; the uncoded BPSK curve 1/2 erfc(sqrt(Eb/N0)) and
-    the Shannon limit of each code rate are drawn for reference. The FER
-    panel also shows the ML lower bound counted during the simulation (frames
-    where the decoder's valid output was at least as likely as the sent word)
-    and, with --limits, the finite-length limits of each code's n and k.
+    Several sources (codes, decoders) share one figure; a decoder keeps its
+    colour and marker in every figure. Error bars are the confidence
+    intervals, hollow markers the upper limit where no error was seen; the
+    uncoded reference (BPSK 1/2 erfc(sqrt(Eb/N0)), and on the FER panel a frame
+    of k uncoded bits) and the Shannon limit of each code rate are drawn too.
+    The FER panel also shows the ML lower bound counted during the simulation
+    (frames where the decoder's valid output was at least as likely as the
+    sent word) and, with --limits, the finite-length limits of each code's n
+    and k.
     """
     from ..plots.curves import check_figure_path, curves_from_file, curves_from_store, plot_curves
 
@@ -70,7 +80,10 @@ def command(sources, output, run, metric, lines, threshold_codes, no_uncoded, no
         for name in threshold_codes:
             code = load_code(name)
             thr = compute_threshold(DegreeDistribution.from_code(code), "awgn", "discretized")
-            extra[f"BP threshold {code.name} ({thr.ebn0_db:.2f} dB)"] = thr.ebn0_db
+            value = thr.ebn0_db
+            if x_axis == "esn0":  # Es/N0 = R Eb/N0 at the design rate
+                value += 10.0 * math.log10(thr.rate)
+            extra[f"BP threshold {code.name}"] = value
     curves = []
     for src in sources:
         if run is not None:
@@ -79,6 +92,7 @@ def command(sources, output, run, metric, lines, threshold_codes, no_uncoded, no
             curves += curves_from_file(src)
     metrics = ("ber", "fer") if metric == "both" else (metric,)
     plot_curves(curves, output, metrics=metrics, thresholds=extra, uncoded=not no_uncoded,
-                shannon=not no_shannon, title=title, ml_lower_bound=not no_ml_bound,
-                limits=with_limits, progress=lambda text: click.echo(text, err=True))
-    click.echo(f"wrote {output} ({len(curves)} curves)")
+                shannon=not no_shannon, title=title, x_axis=x_axis,
+                ml_lower_bound=not no_ml_bound, limits=with_limits,
+                progress=lambda text: click.echo(text, err=True))
+    click.echo(f"wrote {output} ({plural(len(curves), 'curve')})")

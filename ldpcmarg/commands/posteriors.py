@@ -6,6 +6,7 @@ import json
 
 import click
 
+from .._text import plural
 from ..errors import InputError
 from ._outputs import Outputs
 
@@ -102,7 +103,7 @@ def command(code, input_path, output, decoder, ebn0, esn0, sigma, bsc, bec, key,
     if as_json:
         click.echo(json.dumps(summary, indent=2))
         return
-    click.echo(f"{summary['frames']} frame(s) of length {summary['n']} decoded with "
+    click.echo(f"{plural(summary['frames'], 'frame')} of length {summary['n']} decoded with "
                f"{summary['decoder']}: {summary['valid_frames']} valid, "
                f"{summary['mean_iterations']:.1f} iterations on average.")
     for k, v in summary.items():

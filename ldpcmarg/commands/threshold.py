@@ -1,4 +1,7 @@
-"""``ldpcmarg threshold``: BP threshold of an ensemble by density evolution."""
+"""``ldpcmarg threshold``: decoding threshold of an ensemble by density evolution.
+
+BP on the BEC and the BI-AWGN channel; Gallager A/B on the BSC (``--decoder``).
+"""
 
 from __future__ import annotations
 
@@ -6,12 +9,15 @@ import json
 
 import click
 
+from .._text import plural
 from ..errors import InputError
 
 _METHOD_NAMES = {
     "exact": "exact density evolution (erasure-probability recursion)",
     "discretized": "discretised density evolution of quantised LLR densities",
     "gaussian": "Gaussian approximation (APPROXIMATE)",
+    "gallager-a": "Gallager A density evolution (binary messages, closed form)",
+    "gallager-b": "Gallager B density evolution (binary messages, closed form)",
 }
 
 
@@ -61,11 +67,16 @@ def _ensemble(code, regular, var_edges, check_edges, var_nodes, check_nodes):
 def _settings_text(res) -> str:
     s = res.settings
     if res.method == "discretized":
-        return (f"step {s['step']:g}, LLR range +-{s['llr_max']:g}, at most {s['max_iter']} "
-                f"iterations, success at error probability <= {s['target']:g}")
+        return (f"step {s['step']:g}, LLR range +-{s['llr_max']:g}, at most "
+                f"{plural(s['max_iter'], 'iteration')}, success at error probability "
+                f"<= {s['target']:g}")
     if res.method == "gaussian":
-        return f"phi by {s['phi']}, at most {s['max_iter']} iterations"
-    return (f"at most {s['max_iter']} iterations, success at erasure probability "
+        return f"phi by {s['phi']}, at most {plural(s['max_iter'], 'iteration')}"
+    if res.channel == "bsc":
+        flips = ", ".join(f"d={d}: b={t}" for d, t in s["flip_thresholds"].items())
+        return (f"flip thresholds {flips}; at most {plural(s['max_iter'], 'iteration')}, "
+                f"success at message error probability <= {s['target']:g}")
+    return (f"at most {plural(s['max_iter'], 'iteration')}, success at erasure probability "
             f"<= {s['target']:g}")
 
 
@@ -83,11 +94,19 @@ def format_result(res) -> str:
     lines.append(f"design rate     {res.rate:.6f}")
     if res.channel == "bec":
         lines.append("channel         binary erasure channel")
+    elif res.channel == "bsc":
+        lines.append("channel         binary symmetric channel")
     else:
         lines.append("channel         BI-AWGN (BPSK, unit symbol energy)")
     lines.append(f"method          {_METHOD_NAMES[res.method]}")
     lines.append(f"                {_settings_text(res)}")
-    if res.channel == "bec":
+    if res.channel == "bsc":
+        lines.append(f"threshold       p* = {res.threshold:.6f}   "
+                     f"(to within {res.tolerance:.1g})")
+        lines.append(f"capacity limit  p  = {res.capacity_limit:.6f}   (1 - h(p) = R)")
+        lines.append(f"gap             {res.capacity_limit - res.threshold:.6f} in p "
+                     f"(p*/p_Shannon = {res.threshold / res.capacity_limit:.4f})")
+    elif res.channel == "bec":
         lines.append(f"threshold       eps* = {res.threshold:.6f}   "
                      f"(to within {res.tolerance:.1g})")
         lines.append(f"capacity limit  eps  = 1 - R = {res.capacity_limit:.6f}")
@@ -107,7 +126,8 @@ def format_result(res) -> str:
                 lines.append(f"gap             {res.gap_db:.4f} dB")
     if "note" in res.settings:
         lines.append(f"note            {res.settings['note']}")
-    lines.append(f"iterations      {res.iterations} at the largest converging parameter")
+    lines.append(f"iterations      {plural(res.iterations, 'iteration')} at the largest "
+                 "converging parameter")
     lines.append(f"time            {res.seconds:.2f} s")
     return "\n".join(lines)
 
@@ -133,8 +153,12 @@ def _dict_poly(d: dict):
               help="Variable-node fractions by nodes (converted to edge fractions).")
 @click.option("--check-nodes", metavar="D:F,...",
               help="Check-node fractions by nodes (converted to edge fractions).")
-@click.option("--channel", type=click.Choice(["bec", "awgn"]), default="awgn",
-              show_default=True, help="Channel.")
+@click.option("--decoder", type=click.Choice(["bp", "gallager-a", "gallager-b"]), default="bp",
+              show_default=True,
+              help="Decoder whose threshold is computed: belief propagation (BEC, AWGN) or "
+                   "Gallager's hard-decision algorithms A/B (BSC).")
+@click.option("--channel", type=click.Choice(["bec", "awgn", "bsc"]),
+              help="Channel [default: awgn for bp, bsc for gallager-a/b].")
 @click.option("--method", type=click.Choice(["exact", "discretized", "gaussian"]),
               help="exact (BEC; default there), discretized (AWGN; default there) "
                    "or gaussian (AWGN, approximate).")
@@ -146,27 +170,55 @@ def _dict_poly(d: dict):
               help="Error (BEC: erasure) probability counted as convergence.")
 @click.option("--phi", "phi_form", type=click.Choice(["integral", "closed-form"]),
               help="gaussian: how phi is evaluated [default integral].")
+@click.option("--b", "flip_b", type=click.IntRange(min=1),
+              help="gallager-b: disagreeing check messages (of d - 1) that overturn the "
+                   "channel value [default min(ceil(d/2)+1, d-1) per bit degree d].")
 @click.option("--json", "as_json", is_flag=True, help="Print JSON.")
-def command(code, regular, var_edges, check_edges, var_nodes, check_nodes, channel, method,
-            step, llr_max, max_iter, tol, target, phi_form, as_json):
-    """BP decoding threshold of an LDPC ensemble by density evolution.
+def command(code, regular, var_edges, check_edges, var_nodes, check_nodes, decoder, channel,
+            method, step, llr_max, max_iter, tol, target, phi_form, flip_b, as_json):
+    """Decoding threshold of an LDPC ensemble by density evolution.
 
     The ensemble is the Tanner graph of CODE (shipped name or file), a regular
     pair (--regular 3,6) or degree distributions given as degree:fraction
     lists. The threshold is reported as the channel parameter (BEC erasure
-    probability eps*, AWGN noise sigma* with Es = 1) and, for the AWGN
-    channel, as Eb/N0 at the design rate, next to the Shannon limit.
+    probability eps*, AWGN noise sigma* with Es = 1, BSC crossover
+    probability p*) and, for the AWGN channel, as Eb/N0 at the design rate,
+    next to the Shannon limit. BP thresholds are offered on the BEC and the
+    AWGN channel; --decoder gallager-a/gallager-b gives the thresholds of
+    Gallager's hard-decision algorithms on the BSC.
     """
     from ..analysis.density_evolution import METHODS, compute_threshold
 
     dd = _ensemble(code, regular, var_edges, check_edges, var_nodes, check_nodes)
+    if decoder == "bp":
+        channel = channel or "awgn"
+        if channel == "bsc":
+            raise InputError("BP density evolution on the BSC is not offered; use "
+                             "--decoder gallager-a or gallager-b there.")
+        if flip_b is not None:
+            raise InputError("Option --b applies to --decoder gallager-b only.")
+    else:
+        channel = channel or "bsc"
+        if channel != "bsc":
+            raise InputError(f"--decoder {decoder} is a BSC decoder; drop --channel {channel} "
+                             "or use --channel bsc.")
+        if method is not None:
+            raise InputError(f"Option --method does not apply to --decoder {decoder}.")
+        if flip_b is not None and decoder != "gallager-b":
+            raise InputError("Option --b applies to --decoder gallager-b only.")
+        method = decoder
     method = method or METHODS[channel][0]
+    if method not in METHODS[channel]:
+        raise InputError(f"--method {method} is not available for the {channel} channel; "
+                         f"accepted: {', '.join(METHODS[channel])}.")
     given = {"step": step, "llr_max": llr_max, "max_iter": max_iter, "tol": tol,
-             "target": target, "phi_form": phi_form}
+             "target": target, "phi_form": phi_form, "b": flip_b}
     options = {k: v for k, v in given.items() if v is not None}
     allowed = {"exact": {"max_iter", "tol", "target"},
                "discretized": {"step", "llr_max", "max_iter", "tol", "target"},
-               "gaussian": {"max_iter", "tol", "phi_form"}}.get(method, set())
+               "gaussian": {"max_iter", "tol", "phi_form"},
+               "gallager-a": {"max_iter", "tol", "target"},
+               "gallager-b": {"max_iter", "tol", "target", "b"}}.get(method, set())
     for k in options:
         if k not in allowed:
             flag = "--phi" if k == "phi_form" else "--" + k.replace("_", "-")

@@ -1,4 +1,7 @@
-"""Message-passing decoders: sum-product, min-sum family, layered, reweighted, bit flipping.
+"""Message-passing decoders: sum-product, min-sum family, layered, reweighted sum-product.
+
+The hard-decision family (bit flipping, Gallager A/B) lives in
+:mod:`ldpcmarg.decoders.hard_decision`.
 
 All decoders work on the flat Tanner-graph arrays of
 :class:`~ldpcmarg.code.parity_check.ParityCheckCode` (check-major edge order) and decode a
@@ -71,7 +74,6 @@ __all__ = [
     "OffsetMinSumDecoder",
     "LayeredMinSumDecoder",
     "ReweightedSumProductDecoder",
-    "BitFlippingDecoder",
 ]
 
 _MODE_SP = 0
@@ -558,62 +560,6 @@ def _local_beliefs_kernel(L, c2v, check_ptr, edge_var, lc_offset, lc_bit_ptr, lc
             out[j0 + j] /= tot
 
 
-@nb.njit(parallel=True, **NUMBA_OPTS)
-def _bitflip_batch(hard, check_ptr, edge_var, var_ptr, var_edges, edge_check, max_iter,
-                   bits, iters, valid):
-    """Parallel hard-decision bit flipping (Gallager-style majority rule) over a batch.
-
-    Each iteration computes the syndrome; every bit for which more than half of
-    its checks are unsatisfied is flipped. If no bit passes that threshold, the
-    bits with the largest number of unsatisfied checks are flipped instead
-    (so the decoder never stalls on a nonzero syndrome).
-    """
-    F, n = hard.shape
-    m = check_ptr.shape[0] - 1
-    for f in nb.prange(F):
-        x = bits[f]
-        for i in range(n):
-            x[i] = hard[f, i]
-        syn = np.zeros(m, dtype=np.uint8)
-        it = 0
-        ok = False
-        while True:
-            nunsat = 0
-            for c in range(m):
-                par = 0
-                for e in range(check_ptr[c], check_ptr[c + 1]):
-                    par ^= x[edge_var[e]]
-                syn[c] = par
-                nunsat += par
-            if nunsat == 0:
-                ok = True
-                break
-            if it >= max_iter:
-                break
-            best = 0
-            flipped = 0
-            for i in range(n):
-                u = 0
-                for t in range(var_ptr[i], var_ptr[i + 1]):
-                    u += syn[edge_check[var_edges[t]]]
-                deg = var_ptr[i + 1] - var_ptr[i]
-                if 2 * u > deg:
-                    x[i] ^= 1
-                    flipped += 1
-                if u > best:
-                    best = u
-            if flipped == 0:
-                for i in range(n):
-                    u = 0
-                    for t in range(var_ptr[i], var_ptr[i + 1]):
-                        u += syn[edge_check[var_edges[t]]]
-                    if u == best:
-                        x[i] ^= 1
-            it += 1
-        iters[f] = it
-        valid[f] = ok
-
-
 # -------------------------------------------------------------------- options
 def _common_params(damping_default: float = 0.0) -> dict[str, Param]:
     return {
@@ -979,33 +925,3 @@ class ReweightedSumProductDecoder(_MessagePassing):
         tb, tl, info = self._beliefs_one(a[0], max_iter=int(max_iter), tol=float(tol),
                                          early_stop=False)
         return (tb, tl, info) if return_info else (tb, tl)
-
-
-class BitFlippingDecoder(Decoder):
-    """Hard-decision bit flipping (Gallager-style majority rule) for the BSC.
-
-    Works on the signs of the channel LLRs only. Each iteration flips every bit
-    for which more than half of its checks are unsatisfied (or, if there is
-    none, the bits with the most unsatisfied checks). ``posterior_llr`` is None.
-    """
-
-    name = "bit-flipping"
-    description = "Hard-decision bit flipping (Gallager-style) for the BSC."
-    params = {
-        "max_iter": Param("int", 50, low=1, doc="maximum number of flipping rounds"),
-        "threads": Param("int", 0, low=0,
-                         doc="threads for the frame-parallel loop (0 = numba's current setting)"),
-    }
-    hard_output = True
-
-    def _decode(self, llr):
-        c = self.code
-        hard = np.ascontiguousarray((llr < 0).astype(np.uint8))
-        F = hard.shape[0]
-        bits = np.empty_like(hard)
-        iters = np.zeros(F, dtype=np.int64)
-        valid = np.zeros(F, dtype=np.bool_)
-        with _Threads(self.options["threads"]):
-            _bitflip_batch(hard, c.check_ptr, c.edge_var, c.var_ptr, c.var_edges, c.edge_check,
-                           int(self.options["max_iter"]), bits, iters, valid)
-        return DecodeResult(bits=bits, posterior_llr=None, iterations=iters, valid=valid, info={})

@@ -14,7 +14,9 @@ from pathlib import Path
 
 import numpy as np
 
+from .._text import plural
 from ..errors import InputError
+from .style import decoder_style, style_map
 
 __all__ = [
     "plot_reliability",
@@ -26,7 +28,11 @@ __all__ = [
     "save_compare_figures",
 ]
 
-_MARKERS = ("o", "s", "^", "D", "v", "P", "X", "<", ">", "*", "h", "p")
+_POSTERIOR_TITLES = {
+    "mean_abs_error": "Mean posterior error against {ref}, {code}",
+    "max_abs_error": "Largest posterior error against {ref}, {code}",
+    "mean_kl_bits": "KL divergence from the {ref} posteriors, {code}",
+}
 
 _METRIC_LABELS = {
     "mean_abs_error": "mean |P(x=1) - reference P(x=1)|",
@@ -43,17 +49,32 @@ def _plt():
     return plt
 
 
+def _spec_of(result, label):
+    for r in result.rows:
+        if r.label == label:
+            return r.decoder
+    return label
+
+
 def _style(result, label):
-    i = result.decoders.index(label) if label in result.decoders else 0
-    return {"marker": _MARKERS[i % len(_MARKERS)], "color": f"C{i % 10}"}
+    # the same colour and marker as in every other figure (keyed by decoder spec)
+    specs = {lab: _spec_of(result, lab) for lab in result.decoders}
+    styles = style_map(specs.values())
+    return dict(styles.get(specs.get(label, label)) or decoder_style(label))
 
 
-def _ax(ax, figsize=(6.0, 4.2)):
+def _ax(ax, figsize=(7.6, 4.2)):
     if ax is not None:
         return ax.figure, ax
     plt = _plt()
     fig, ax = plt.subplots(figsize=figsize, layout="constrained")
     return fig, ax
+
+
+def _legend(ax, **kw):
+    """Legend outside the axes, to the right, so it never covers a curve."""
+    ax.legend(fontsize=7, loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0.0,
+              frameon=False, **kw)
 
 
 def _positive(xs, ys):
@@ -140,7 +161,7 @@ def plot_reliability(result, snr=None, ax=None, *, decoders=None, legend: bool =
     ax.set_ylabel("observed bit-error frequency")
     ax.set_title(f"Reliability, {result.code.get('name')}, {_snr_text(result, s)}")
     if legend:
-        ax.legend(fontsize=7)
+        _legend(ax)
     return ax
 
 
@@ -159,10 +180,30 @@ def reliability_figure(result, *, decoders=None, max_cols: int = 3):
     rows = math.ceil(k / cols)
     fig, axes = plt.subplots(rows, cols, figsize=(5.2 * cols, 4.2 * rows), layout="constrained",
                              squeeze=False)
+    handles: dict = {}
     for i, s in enumerate(result.snr_points):
-        plot_reliability(result, s, axes[i // cols][i % cols], decoders=decoders)
+        ax = axes[i // cols][i % cols]
+        plot_reliability(result, s, ax, decoders=decoders, legend=False)
+        eces = []
+        for h, lab in zip(*ax.get_legend_handles_labels(), strict=True):
+            # ECE differs per panel: one legend entry per decoder, the ECEs in a corner
+            # below the diagonal (stated error far above the observed: rarely drawn on)
+            name, _, ece = lab.partition(" (ECE ")
+            handles.setdefault(name, h)
+            if ece:
+                eces.append(f"{name}: {ece.rstrip(')')}")
+        if eces:
+            ax.text(0.98, 0.02, "ECE\n" + "\n".join(eces), transform=ax.transAxes, ha="right",
+                    va="bottom", fontsize=6, color="0.25")
     for j in range(k, rows * cols):
         axes[j // cols][j % cols].set_visible(False)
+    from matplotlib.lines import Line2D
+
+    tri = Line2D([], [], ls="none", marker="v", color="0.3", alpha=0.5,
+                 label="no error in the bin: upper end of the 95 % interval")
+    fig.legend(list(handles.values()) + [tri], list(handles) + [tri.get_label()],
+               loc="outside lower center", ncols=min(3, len(handles) + 1), fontsize=8,
+               frameon=False)
     return fig
 
 
@@ -193,9 +234,10 @@ def plot_posterior_error(result, metric: str = "mean_abs_error", ax=None, *,
     ax.set_yscale("log")
     ax.set_xlabel(result.snr_label)
     ax.set_ylabel(_METRIC_LABELS[metric])
-    ax.set_title(f"Posterior error against {result.reference}, {result.code.get('name')}")
+    ax.set_title(_POSTERIOR_TITLES[metric].format(ref=result.reference,
+                                                  code=result.code.get("name")))
     if legend:
-        ax.legend(fontsize=7)
+        _legend(ax)
     return ax
 
 
@@ -212,26 +254,68 @@ def plot_calibration_error(result, ax=None, *, legend: bool = True):
     ax.set_ylabel("expected calibration error")
     ax.set_title(f"Calibration against transmitted bits, {result.code.get('name')}")
     if legend:
-        ax.legend(fontsize=7)
+        _legend(ax)
     return ax
 
 
+def _rate_intervals(rows, metric, confidence=0.95):
+    from ..engine import stats
+
+    out = []
+    for r in rows:
+        if metric == "fer":
+            out.append(stats.clopper_pearson(r.frame_errors, r.frames, confidence))
+        elif r.bit_errors_sq or not r.bit_errors:
+            out.append(stats.ber_interval(r.bit_errors, r.bit_errors_sq, r.frames, r.n,
+                                          confidence))
+        else:  # a result saved before per-frame sums were kept: no honest BER interval
+            out.append((math.nan, math.nan))
+    return np.array(out, dtype=np.float64).reshape(-1, 2)
+
+
 def plot_error_rates(result, ax=None, *, legend: bool = True):
-    """BER (solid) and FER (dashed) versus SNR, log y."""
+    """BER (solid) and FER (dashed) versus SNR with 95 % intervals, log y.
+
+    FER bars are Clopper–Pearson intervals; BER bars treat frames as the
+    sampling unit (:func:`ldpcmarg.engine.stats.ber_interval`). Where no error
+    was seen a hollow marker shows the upper limit.
+    """
+    from matplotlib.lines import Line2D
+
     fig, ax = _ax(ax)
+    any_zero = False
     for label in result.decoders:
         rows = result.for_decoder(label)
         st = _style(result, label)
+        xs = np.array([r.snr for r in rows], dtype=np.float64)
         for metric, ls, tag in (("ber", "-", "BER"), ("fer", "--", "FER")):
-            x, y, _ = _positive([r.snr for r in rows], [getattr(r, metric) for r in rows])
-            if x.size:
-                ax.plot(x, y, ls=ls, label=f"{label} {tag}", **st)
+            y = np.array([getattr(r, metric) for r in rows], dtype=np.float64)
+            ci = _rate_intervals(rows, metric)
+            pos = np.isfinite(y) & (y > 0)
+            if pos.any():
+                yerr = np.vstack([y[pos] - ci[pos, 0], ci[pos, 1] - y[pos]])
+                yerr = np.where(np.isfinite(yerr), np.clip(yerr, 0, None), 0.0)
+                ax.errorbar(xs[pos], y[pos], yerr=yerr, ls=ls, capsize=2, ms=5, lw=1.2,
+                            label=f"{label} {tag}", **st)
+            zero = np.isfinite(y) & (y == 0) & np.isfinite(ci[:, 1])
+            if zero.any():
+                any_zero = True
+                ax.plot(xs[zero], ci[zero, 1], ls="none", marker=st["marker"],
+                        color=st["color"], mfc="none", ms=6)
     ax.set_yscale("log")
     ax.set_xlabel(result.snr_label)
     ax.set_ylabel("error rate (BER solid, FER dashed)")
-    ax.set_title(f"Error rates, {result.code.get('name')}, {result.frames} frames per point")
+    ax.set_title(f"Error rates with 95 % intervals, {result.code.get('name')}, "
+                 f"{plural(result.frames, 'frame')} per point")
+    if legend and any_zero:
+        h, lab = ax.get_legend_handles_labels()
+        z = Line2D([], [], ls="none", marker="o", mfc="none", color="0.3",
+                   label="hollow: no errors seen, upper 95 % limit")
+        ax.legend(h + [z], lab + [z.get_label()], fontsize=7, loc="upper left",
+                  bbox_to_anchor=(1.02, 1.0), borderaxespad=0.0, frameon=False)
+        return ax
     if legend:
-        ax.legend(fontsize=7)
+        _legend(ax)
     return ax
 
 
@@ -260,7 +344,7 @@ def plot_time_vs_accuracy(result, metric: str = "mean_abs_error", ax=None, *,
     ax.set_ylabel(_METRIC_LABELS[metric])
     ax.set_title(f"Time against accuracy (labels: {result.snr_label})", fontsize=9)
     if legend:
-        ax.legend(fontsize=7)
+        _legend(ax)
     return ax
 
 

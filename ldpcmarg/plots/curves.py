@@ -16,6 +16,17 @@ Reference lines (AWGN, Eb/N0 axis):
 For BSC/BEC sweeps the x axis is the channel parameter; the reference lines
 are the uncoded error rate (``p``; for the BEC half the erasures are guessed
 wrong, ``epsilon / 2``) and the capacity limit of the rate.
+
+On the FER panel the uncoded reference is the probability that a frame of
+``k`` uncoded information bits has an error, ``1 - (1 - BER_uncoded)**k``.
+AWGN curves can be drawn against Es/N0 (``x_axis="esn0"``):
+``Es/N0 = Eb/N0 + 10 log10(R)`` per curve; the uncoded BPSK reference is then
+``1/2 erfc(sqrt(Es/N0))`` (rate 1, Es = Eb).
+
+Styles: one colour and marker per decoder spec in every figure
+(:func:`ldpcmarg.plots.style.decoder_style`), one line style per code or run;
+points with no error are drawn hollow at their upper confidence limit, and
+the legend says so. The legend sits outside the panels, below them.
 """
 
 from __future__ import annotations
@@ -29,13 +40,22 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import InputError
+from .style import (
+    LINESTYLES,
+    decoder_style,
+    default_title,
+    reference_label,
+    style_map,
+)
 
 __all__ = ["Curve", "curves_from_sweep", "curves_from_store", "curves_from_file",
-           "plot_curves", "check_figure_path", "uncoded_bpsk_ber", "FIGURE_FORMATS"]
+           "plot_curves", "check_figure_path", "uncoded_bpsk_ber", "FIGURE_FORMATS",
+           "curves_title", "decoder_style", "uncoded_fer"]
 
 FIGURE_FORMATS = (".png", ".svg", ".pdf")
 
-_XLABEL = {"ebn0_db": "$E_b/N_0$ (dB)", "p": "BSC crossover probability $p$",
+_XLABEL = {"ebn0_db": "$E_b/N_0$ (dB)", "esn0_db": "$E_s/N_0$ (dB)",
+           "p": "BSC crossover probability $p$",
            "epsilon": "BEC erasure probability $\\epsilon$"}
 
 
@@ -53,8 +73,17 @@ class Curve:
     x, ber, fer : ndarray of shape (P,), float64
     ber_ci, fer_ci : ndarray of shape (P, 2), float64
         Lower and upper interval bounds.
+    decoder : str
+        Decoder spec (keys the colour and marker); defaults to ``label``.
+    code : str
+        Code name ("" when unknown).
     n, k : int or None
-        Code length and dimension, when the source records them.
+        Code length and dimension (k: information bits per frame).
+    series : str
+        Extra tag that tells repeated curves of one decoder and code apart
+        (e.g. ``"run 2"``); drawn as a different line style.
+    confidence : float
+        Level of the intervals.
     ml_lb, ml_lb_ci : ndarray of shape (P,) and (P, 2), float64, or None
         Lower bound on the block-ML FER counted in the simulation and its
         interval (None for sources written before it was counted).
@@ -68,10 +97,18 @@ class Curve:
     ber_ci: np.ndarray
     fer: np.ndarray
     fer_ci: np.ndarray
+    decoder: str = ""
+    code: str = ""
     n: int | None = None
     k: int | None = None
+    series: str = ""
+    confidence: float = 0.95
     ml_lb: np.ndarray | None = None
     ml_lb_ci: np.ndarray | None = None
+
+    def __post_init__(self):
+        if not self.decoder:
+            self.decoder = self.label.rpartition(": ")[2]
 
 
 def uncoded_bpsk_ber(ebn0_db) -> np.ndarray:
@@ -89,6 +126,9 @@ def check_figure_path(path) -> None:
                          f"{', '.join(FIGURE_FORMATS)}; got {ext or 'no extension'!r}.")
 
 
+_META = ("decoder", "code", "n", "k", "series", "confidence")
+
+
 def _records_to_curves(records: list[dict], prefix: str = "") -> list[Curve]:
     groups: dict[tuple, list[dict]] = {}
     for r in records:
@@ -96,8 +136,9 @@ def _records_to_curves(records: list[dict], prefix: str = "") -> list[Curve]:
     out = []
     for (label, kind, rate), rs in groups.items():
         rs = sorted(rs, key=lambda r: r["x"])
+        meta = {m: rs[0][m] for m in _META if rs[0].get(m) is not None}
         out.append(Curve(
-            label=prefix + label, x_kind=kind, rate=float(rate),
+            label=prefix + label, x_kind=kind, rate=float(rate), **meta,
             x=np.array([r["x"] for r in rs], dtype=np.float64),
             ber=np.array([r["ber"] for r in rs], dtype=np.float64),
             ber_ci=np.array([r["ber_ci"] for r in rs], dtype=np.float64).reshape(-1, 2),
@@ -108,12 +149,8 @@ def _records_to_curves(records: list[dict], prefix: str = "") -> list[Curve]:
 
 
 def _short_code_fields(rs: list[dict]) -> dict:
-    """n, k and the ML lower bound of grouped records (None where a source lacks them)."""
+    """The ML lower bound of grouped records (None where a source lacks it)."""
     out: dict = {}
-    ns = {r.get("n") for r in rs}
-    ks = {r.get("k") for r in rs}
-    if len(ns) == 1 and len(ks) == 1 and None not in ns | ks:
-        out["n"], out["k"] = int(ns.pop()), int(ks.pop())
     if all(r.get("ml_lb") is not None for r in rs):
         out["ml_lb"] = np.array([r["ml_lb"] for r in rs], dtype=np.float64)
         out["ml_lb_ci"] = np.array([r["ml_lb_ci"] for r in rs],
@@ -137,8 +174,10 @@ def curves_from_sweep(result, code_label: str | None = None) -> list[Curve]:
         kind, x = _x_of(p.snr_kind, p.snr, p.rate)
         recs.append({"label": f"{name}: {p.decoder}" if name else p.decoder, "x_kind": kind,
                      "rate": p.rate, "x": x, "ber": p.ber, "ber_ci": p.ber_ci, "fer": p.fer,
-                     "fer_ci": p.fer_ci, "n": p.n, "k": p.k, "ml_lb": p.ml_lower_bound_fer,
-                     "ml_lb_ci": p.ml_lower_bound_fer_ci})
+                     "fer_ci": p.fer_ci, "decoder": p.decoder,
+                     "code": result.code.get("name", ""), "n": p.n, "k": p.k,
+                     "confidence": p.confidence,
+                     "ml_lb": p.ml_lower_bound_fer, "ml_lb_ci": p.ml_lower_bound_fer_ci})
     return _records_to_curves(recs)
 
 
@@ -168,13 +207,14 @@ def curves_from_store(path, run: int | None = None, confidence: float = 0.95) ->
         if several:
             label += f" (run {r['run']})"
         recs.append({
-            "label": label, "x_kind": kind, "rate": rate, "x": x,
+            "label": label, "x_kind": kind, "rate": rate, "x": x, "decoder": r["decoder"],
+            "code": meta["code_name"], "n": n, "k": k, "confidence": confidence,
+            "series": f"run {r['run']}" if several else "",
             "ber": r["info_bit_errors"] / (F * k), "fer": r["frame_errors"] / F,
             "ber_ci": stats.ber_interval(r["info_bit_errors"], r["info_bit_errors_sq"], F, k,
                                          confidence),
             "fer_ci": stats.clopper_pearson(r["frame_errors"], F, confidence),
-            "n": n, "k": k, **_store_ml_bound(r.get("ml_lower_bound_frame_errors"), F,
-                                              confidence)})
+            **_store_ml_bound(r.get("ml_lower_bound_frame_errors"), F, confidence)})
     return _records_to_curves(recs)
 
 
@@ -218,7 +258,9 @@ def curves_from_file(path) -> list[Curve]:
                 recs.append({"label": f"{name}: {p['decoder']}" if name else p["decoder"],
                              "x_kind": kind, "rate": rate, "x": float(x),
                              "ber": p["ber"], "ber_ci": p["ber_ci"], "fer": p["fer"],
-                             "fer_ci": p["fer_ci"], "n": code.get("n"), "k": code.get("k"),
+                             "fer_ci": p["fer_ci"], "decoder": p["decoder"], "code": name,
+                             "n": code.get("n"), "k": code.get("k"),
+                             "confidence": p.get("confidence", 0.95),
                              "ml_lb": p.get("ml_lower_bound_fer"),
                              "ml_lb_ci": p.get("ml_lower_bound_fer_ci")})
         except (KeyError, TypeError, ValueError) as exc:
@@ -236,10 +278,11 @@ def curves_from_file(path) -> list[Curve]:
                 else (kind, float(r["snr"]))
             recs.append({"label": f"{r['code']}: {r['decoder']}", "x_kind": kind, "rate": rate,
                          "x": x, "ber": float(r["ber"]), "fer": float(r["fer"]),
-                         "ber_ci": [float(r["ber_ci_lo"]), float(r["ber_ci_hi"])],
-                         "fer_ci": [float(r["fer_ci_lo"]), float(r["fer_ci_hi"])],
+                         "decoder": r["decoder"], "code": r["code"],
                          "n": int(r["n"]) if r.get("n") else None,
                          "k": int(r["k"]) if r.get("k") else None,
+                         "ber_ci": [float(r["ber_ci_lo"]), float(r["ber_ci_hi"])],
+                         "fer_ci": [float(r["fer_ci_lo"]), float(r["fer_ci_hi"])],
                          "ml_lb": float(r["ml_lower_bound_fer"])
                          if r.get("ml_lower_bound_fer") else None,
                          "ml_lb_ci": [float(r["ml_lower_bound_fer_ci_lo"]),
@@ -281,10 +324,53 @@ def _short_code_extras(ax, curves, kind, x_left, x_right, ml_lower_bound, limits
         extras.draw_finite_length_limits(ax, kind, sizes, x_left, x_right, progress)
 
 
+def _axis_kind(kind: str, x_axis: str) -> str:
+    if x_axis not in ("ebn0", "esn0"):
+        raise InputError(f"Unknown x axis {x_axis!r}; accepted: ebn0, esn0.")
+    if x_axis == "esn0":
+        if kind != "ebn0_db":
+            raise InputError("An Es/N0 axis needs AWGN results; these curves are against "
+                             f"the {'BSC p' if kind == 'p' else 'BEC epsilon'}.")
+        return "esn0_db"
+    return kind
+
+
+def _axis_x(c: Curve, axis_kind: str) -> np.ndarray:
+    # Es/N0 = R Eb/N0, i.e. Es/N0 (dB) = Eb/N0 (dB) + 10 log10 R
+    return c.x + 10.0 * math.log10(c.rate) if axis_kind == "esn0_db" else c.x
+
+
+def _uncoded_ber(grid: np.ndarray, kind: str) -> tuple[np.ndarray, str]:
+    if kind in ("ebn0_db", "esn0_db"):
+        # uncoded BPSK has rate 1, so Es/N0 = Eb/N0 and the same formula serves both axes
+        return uncoded_bpsk_ber(grid), "uncoded BPSK"
+    if kind == "p":
+        return grid.copy(), "uncoded (BER = p)"
+    return grid / 2, "uncoded (BER = eps/2)"
+
+
+def uncoded_fer(ber_uncoded, k: int) -> np.ndarray:
+    """FER of ``k`` uncoded bits: ``1 - (1 - BER)**k`` (independent bit errors)."""
+    u = np.asarray(ber_uncoded, dtype=np.float64)
+    return -np.expm1(int(k) * np.log1p(-np.clip(u, 0.0, 1.0 - 1e-16)))
+
+
+def curves_title(curves, x_axis: str = "ebn0") -> str:
+    """Default title of a figure of ``curves``: code(s), n, k, channel, iteration cap(s)."""
+    kind = _axis_kind(curves[0].x_kind, x_axis)
+    return default_title([(c.code, c.n, c.k) for c in curves], kind,
+                         [c.decoder for c in curves])
+
+
+def _series_styles(curves) -> dict:
+    keys = list(dict.fromkeys((c.code, c.series) for c in curves))
+    return {key: LINESTYLES[i % len(LINESTYLES)] for i, key in enumerate(keys)}
+
+
 def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict | None = None,
                 uncoded: bool = True, shannon: bool = True, title: str | None = None,
-                axes=None, ml_lower_bound: bool = True, limits: bool = False,
-                progress=None):
+                axes=None, x_axis: str = "ebn0", ml_lower_bound: bool = True,
+                limits: bool = False, progress=None):
     """Draw BER and/or FER curves with confidence-interval error bars.
 
     Parameters
@@ -296,14 +382,21 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
     metrics : tuple of {"ber", "fer"}
         One panel per metric, side by side.
     thresholds : dict of str to float, optional
-        Extra vertical lines, e.g. ``{"BP threshold (3,6)": 1.11}`` in the x unit.
+        Extra vertical lines, e.g. ``{"BP threshold (3,6)": 1.10}``, in the unit of
+        the x axis as drawn; the legend appends the value with its unit.
     uncoded : bool
-        Draw the uncoded reference (uncoded BPSK ``1/2 erfc(sqrt(Eb/N0))`` on AWGN).
+        Draw the uncoded reference on both panels (BER: uncoded BPSK
+        ``1/2 erfc(sqrt(Eb/N0))`` on AWGN; FER: a frame of k uncoded bits).
     shannon : bool
         Draw the Shannon limit of each distinct code rate.
     title : str, optional
+        Default :func:`curves_title` (code, n, k, channel, iteration cap); ``""``
+        for none.
     axes : sequence of matplotlib Axes, optional
-        Draw into these (one per metric) instead of a new figure.
+        Draw into these (one per metric) instead of a new figure; each then gets
+        its own legend.
+    x_axis : {"ebn0", "esn0"}
+        AWGN results against Eb/N0 (default) or Es/N0, both in dB.
     ml_lower_bound : bool
         FER panel: draw the counted ML lower bound of curves that carry one.
     limits : bool
@@ -322,93 +415,135 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
     kinds = {c.x_kind for c in curves}
     if len(kinds) > 1:
         raise InputError(f"Cannot mix channel parameters on one axis: {sorted(kinds)}.")
-    kind = kinds.pop()
+    kind = _axis_kind(kinds.pop(), x_axis)
     metrics = tuple(metrics)
     for m in metrics:
         if m not in ("ber", "fer"):
             raise InputError(f"Unknown metric {m!r}; accepted: ber, fer.")
     if path is not None:
         check_figure_path(path)
-    if axes is None:
-        size = (5.2 * len(metrics), 4.2)
+    own = axes is None
+    if own:
+        size = (5.2 * len(metrics), 5.0)
         if path is not None:  # no pyplot, no GUI backend: draw straight to the file
             from matplotlib.figure import Figure
 
-            fig = Figure(figsize=size)
+            fig = Figure(figsize=size, layout="constrained")
             axs = fig.subplots(1, len(metrics), squeeze=False)
         else:
             import matplotlib.pyplot as plt
 
-            fig, axs = plt.subplots(1, len(metrics), figsize=size, squeeze=False)
+            fig, axs = plt.subplots(1, len(metrics), figsize=size, squeeze=False,
+                                    layout="constrained")
         axes = list(axs[0])
     else:
         axes = list(axes)
         fig = axes[0].figure
-    xs = np.concatenate([c.x for c in curves])
+    from matplotlib.lines import Line2D
+
+    xcurves = [_axis_x(c, kind) for c in curves]
+    xs = np.concatenate(xcurves)
     xlo, xhi = float(xs.min()), float(xs.max())
     pad = 0.05 * (xhi - xlo) if xhi > xlo else 0.5
     rates = sorted({round(c.rate, 6) for c in curves})
-    edges = [xlo - pad, xhi + pad]
+    shannon_x = {}
     if shannon:
-        edges += [v for v in (_shannon_x(kind, r) for r in rates)
-                  if v is not None and math.isfinite(v)]
+        for r in rates:
+            sx = _shannon_x("ebn0_db" if kind == "esn0_db" else kind, r)
+            if sx is not None and math.isfinite(sx):
+                shannon_x[r] = sx + 10.0 * math.log10(r) if kind == "esn0_db" else sx
+    edges = [xlo - pad, xhi + pad, *shannon_x.values()]
     edges += [float(v) for v in (thresholds or {}).values()]
     x_left = min(edges) - (pad if min(edges) < xlo - pad else 0.0)
     x_right = max(edges) + (pad if max(edges) > xhi + pad else 0.0)
     grid = np.linspace(x_left, x_right, 200)
-    if kind != "ebn0_db":
+    if kind not in ("ebn0_db", "esn0_db"):
         grid = grid[(grid > 0) & (grid < 1)]
+    styles = style_map([c.decoder for c in curves])
+    series = _series_styles(curves)
+    one_code = len(series) == 1
+    ks = sorted({int(c.k) for c in curves if c.k})
+    any_zero = False
+    curve_labels = set()
     for ax, metric in zip(axes, metrics, strict=True):
-        for i, c in enumerate(curves):
+        for c, x in zip(curves, xcurves, strict=True):
             y = getattr(c, metric)
             ci = getattr(c, metric + "_ci")
             pos = y > 0
-            color = f"C{i % 10}"
+            st = styles[c.decoder]
+            ls = series[(c.code, c.series)]
+            label = c.decoder + (f" ({c.series})" if c.series else "") if one_code else c.label
+            curve_labels.add(label)
             if pos.any():
                 yerr = np.vstack([y[pos] - ci[pos, 0], ci[pos, 1] - y[pos]])
-                ax.errorbar(c.x[pos], y[pos], yerr=np.clip(yerr, 0, None), marker="o", ms=4,
-                            capsize=3, lw=1.3, color=color, label=c.label)
-            if (~pos).any():  # no errors seen: show the upper confidence bound only
-                ax.plot(c.x[~pos], ci[~pos, 1], "v", color=color, ms=5,
-                        label=None if pos.any() else c.label + " (upper bound)")
-        if metric == "fer" and (ml_lower_bound or limits):
+                ax.errorbar(x[pos], y[pos], yerr=np.clip(yerr, 0, None), ms=5, capsize=3,
+                            lw=1.3, ls=ls, label=label, **st)
+            else:
+                ax.plot([], [], ms=5, lw=1.3, ls=ls, label=label, **st)
+            if (~pos).any():  # no errors seen: hollow marker at the upper confidence limit
+                any_zero = True
+                ax.plot(x[~pos], ci[~pos, 1], ls="none", marker=st["marker"],
+                        color=st["color"], mfc="none", ms=6, mew=1.3)
+        if metric == "fer" and (ml_lower_bound or limits) and kind != "esn0_db":
+            # (drawn against Eb/N0 or the BSC/BEC parameter, as the curves carry them)
             _short_code_extras(ax, curves, kind, x_left, x_right, ml_lower_bound, limits,
                                progress)
-        if uncoded:
-            if kind == "ebn0_db":
-                u = uncoded_bpsk_ber(grid)
-                lab = "uncoded BPSK"
-                if metric == "fer":
-                    u, lab = None, None
-            elif kind == "p":
-                u, lab = (grid if metric == "ber" else None), "uncoded (BER = p)"
-            else:
-                u, lab = (grid / 2 if metric == "ber" else None), "uncoded (BER = eps/2)"
-            if u is not None:
+        if uncoded and grid.size:
+            u, lab = _uncoded_ber(grid, kind)
+            if metric == "ber":
                 ax.plot(grid, u, "k--", lw=1, label=lab)
-        if shannon:
-            for r in rates:
-                sx = _shannon_x(kind, r)
-                if sx is not None and math.isfinite(sx):
-                    ax.axvline(sx, color="0.4", ls=":", lw=1.2,
-                               label=f"Shannon limit R={r:.3g} ({sx:.3g})")
+            else:
+                for j, k in enumerate(ks):
+                    ax.plot(grid, uncoded_fer(u, k), color="k", lw=1,
+                            ls=((0, (6, 2, 1, 2)), (0, (2, 2)), (0, (8, 2)))[j % 3],
+                            label=f"{lab}, FER of {k} bits")
+        for r, sx in shannon_x.items():
+            ax.axvline(sx, color="0.4", ls=":", lw=1.2,
+                       label=reference_label(f"Shannon limit R={r:.3g}", sx, kind))
         for j, (lab, tx) in enumerate((thresholds or {}).items()):
-            ax.axvline(float(tx), color=f"C{(j + 5) % 10}", ls="-.", lw=1.1,
-                       label=f"{lab} ({float(tx):.3g})")
+            ax.axvline(float(tx), color="0.15", ls=("-.", (0, (3, 1, 1, 1, 1, 1)))[j % 2],
+                       lw=1.1, label=reference_label(lab, float(tx), kind))
         ax.set_yscale("log")
         ax.set_xlabel(_XLABEL[kind])
         ax.set_ylabel("bit error rate (information bits)" if metric == "ber"
                       else "frame error rate")
         ax.grid(True, which="both", alpha=0.3)
-        ax.legend(fontsize=7, loc="best")
-        ymin = min([float(np.min(getattr(c, metric + "_ci")[:, 0][getattr(c, metric) > 0]))
-                    for c in curves if (getattr(c, metric) > 0).any()] or [1e-6])
-        ax.set_ylim(max(ymin / 3, 1e-12), 1.0)
+        lows = [float(np.min(getattr(c, metric + "_ci")[:, 0][getattr(c, metric) > 0]))
+                for c in curves if (getattr(c, metric) > 0).any()]
+        lows += [float(np.min(getattr(c, metric + "_ci")[:, 1][getattr(c, metric) == 0]))
+                 for c in curves if (getattr(c, metric) == 0).any()]
+        ymin = min(lows or [1e-6])
+        # a little head-room above 1 keeps reference curves near 1 (uncoded FER) visible
+        ax.set_ylim(max(ymin / 3, 1e-12), 1.5)
         ax.set_xlim(x_left, x_right)
+    conf = curves[0].confidence
+    zero_handle = Line2D([], [], ls="none", marker="o", mfc="none", color="0.3", ms=6,
+                         label=f"hollow marker: no errors seen; upper {100 * conf:g} % "
+                               "confidence limit")
+    if own:
+        handles, labels = {}, []
+        for ax in axes:
+            for h, lab in zip(*ax.get_legend_handles_labels(), strict=True):
+                if lab not in handles:
+                    handles[lab] = h
+                    labels.append(lab)
+        # decoders first (in the order given), then the reference lines
+        labels.sort(key=lambda lab: lab not in curve_labels)
+        hs = [handles[lab] for lab in labels]
+        if any_zero:
+            hs.append(zero_handle)
+            labels.append(zero_handle.get_label())
+        fig.legend(hs, labels, loc="outside lower center", ncols=2 if len(metrics) > 1 else 1,
+                   fontsize=7.5, frameon=False)
+    else:
+        for ax in axes:
+            extra = [zero_handle] if any_zero else []
+            h, lab = ax.get_legend_handles_labels()
+            ax.legend(h + extra, lab + [e.get_label() for e in extra], fontsize=7, loc="best")
+    if title is None:
+        title = curves_title(curves, x_axis)
     if title:
-        fig.suptitle(title)
-    fig.tight_layout()
+        fig.suptitle(title, fontsize=10)
     if path is not None:
-        fig.savefig(path)
+        fig.savefig(path, dpi=130)
     return fig
-

@@ -1,4 +1,4 @@
-"""``ldpcmarg envinfo``: environment report for bug reports."""
+"""``ldpcmarg versions``: environment report for bug reports."""
 
 from __future__ import annotations
 
@@ -24,7 +24,7 @@ def environment_report() -> dict:
     return out
 
 
-@click.command("envinfo")
+@click.command("versions")
 @click.option("--json", "as_json", is_flag=True, help="Print JSON.")
 def command(as_json):
     """Print versions and machine facts (paste them into bug reports)."""
