@@ -107,6 +107,15 @@ _FULL_STEP = 1.0 - 1e-12
 # per-check direction kinds of the line-search kernel
 _GENERIC, _TO_ONE, _PAIR, _NONE = 0, 1, 2, 3
 
+#: Frames whose largest |LLR| exceeds this are solved at zero temperature (status
+#: ``"low_temperature"``): a local codeword spanning three such bits then has a
+#: probability below exp(-900), under float64's smallest subnormal (about
+#: exp(-745)), so the free energy and its gradient (logs floored at 1e-300, i.e.
+#: -690.8) can no longer be evaluated faithfully, while the entropy (at most
+#: ``entropy_bound`` nats) is negligible against the linear term: the optimum of
+#: ``F`` is then within ``entropy_bound`` of the LP-decoding optimum.
+LOW_TEMPERATURE_LLR = 300.0
+
 _VARIANTS = ("vanilla", "away", "pairwise", "contracted")
 _ORACLES = ("lp", "ml", "dual")
 _WARM = ("auto", "uniform", "reweighted-sum-product")
@@ -311,6 +320,19 @@ class FWProblem:
         self.uniform_local = 1.0 / counts[self.lc.owner]
         self.uniform_bits = np.full(self.n, 0.5)
         self.uniform_bits[code.var_degrees == 0] = 0.5
+
+    def entropy_bound(self) -> float:
+        """Upper bound on ``H_rho(tau)`` over ``L`` (nats).
+
+        ``sum_c rho_c ln(#local codewords of c) + sum_i max(kappa_i, 0) ln 2``:
+        each check entropy is at most the log of its number of local codewords,
+        each bit entropy at most ``ln 2`` (and >= 0, so bits with ``kappa_i < 0``
+        add at most 0). Hence ``F(tau) >= LP* - entropy_bound`` on ``L`` for any
+        ``rho >= 0``, convex or not (``LP*`` the LP-decoding optimum).
+        """
+        counts = np.diff(self.offset).astype(np.float64)
+        return float(self.rho @ np.log(np.maximum(counts, 1.0))
+                     + math.log(2.0) * np.maximum(self.kappa, 0.0).sum())
 
     def free_energy(self, lam, tb, tl) -> float:
         """``F(tau)`` for LLRs ``lam`` (n,) at ``(tb (n,), tl (L,))``."""
@@ -608,7 +630,10 @@ class FWFrameResult:
         ``"vertex"`` (F not known to be convex, started away from every vertex
         and ended at an integral one: a Bethe trap, not marginals),
         ``"max_iter"``, ``"time_limit"``, ``"stalled"`` (line search made no
-        progress) or ``"oracle_failed"``.
+        progress), ``"oracle_failed"``, or ``"low_temperature"`` (LLRs beyond
+        ``LOW_TEMPERATURE_LLR``: the LP-decoding vertex, within ``certified_gap``
+        of the optimum; its hard decisions are the LP decoder's, a
+        pseudo-codeword when fractional).
     eps : float
         Final contraction (variant "contracted").
     certified_gap : float or None
@@ -983,6 +1008,10 @@ class FrankWolfeDecoder(Decoder):
         Hyperforest sampling for ``entropy="trw"``.
     max_check_degree : int
 
+    Frames with ``max |LLR| > LOW_TEMPERATURE_LLR`` (300) are solved at zero
+    temperature (:meth:`solve_low_temperature`): the LP-decoding vertex, status
+    ``"low_temperature"``, with a certified gap from the entropy bound.
+
     Outputs
     -------
     posterior_llr : (F, n) float64
@@ -1093,6 +1122,7 @@ class FrankWolfeDecoder(Decoder):
         state["_oracle"] = None
         state["_mp"] = None
         state["_dual"] = None
+        state["_lp_zero_t"] = None
         return state
 
     def _get_oracle(self):
@@ -1137,9 +1167,60 @@ class FrankWolfeDecoder(Decoder):
             return None             # beliefs too close to 0/1 to repair: uniform start
         return tb, tl
 
-    def solve_one(self, llr_row) -> FWFrameResult:
-        """Run the solver on one frame of channel LLRs (n,) and return the full record."""
+    def solve_low_temperature(self, llr_row) -> FWFrameResult:
+        """Zero-temperature solve of one frame: the LP-decoding optimum and its certificate.
+
+        Used for frames with ``max |LLR| > LOW_TEMPERATURE_LLR``. Since
+        ``F(tau) = <lam, tau> - H_rho(tau)`` and ``0 <= H_rho <= Hmax``
+        (:meth:`FWProblem.entropy_bound`) on ``L`` for TRW weights (``H_rho <=
+        Hmax`` for any ``rho >= 0``), ``F* >= LP* - Hmax`` and the LP vertex ``v``
+        satisfies ``F(v) - F* <= Hmax - H_rho(v)``: the reported certified gap.
+        As the LLR scale grows the free-energy optimum tends to the LP optimum
+        (not to the exact bitwise MAP, which tends to block ML; both agree when
+        the LP optimum is integral, the ML certificate). A fractional vertex
+        gives a pseudo-codeword; its hard decisions are then not a codeword
+        and ``valid`` says so.
+        """
+        from .lp import LocalPolytopeLP, cost_scale
+
         lam = np.ascontiguousarray(llr_row, dtype=np.float64)
+        t0 = time.perf_counter()
+        if getattr(self, "_lp_zero_t", None) is None:
+            self._lp_zero_t = LocalPolytopeLP(self.code,
+                                              max_check_degree=self.options["max_check_degree"])
+        scale = cost_scale(lam)
+        sol = self._lp_zero_t.solve(lam * scale, warm=False, time_limit=self.options["time_limit"])
+        seconds = time.perf_counter() - t0
+        prob = self._prob
+        if not sol.optimal or not np.all(np.isfinite(sol.bits)):
+            status = "time_limit" if sol.status == "time_limit" else "oracle_failed"
+            tb, tl = prob.uniform_bits.copy(), prob.uniform_local.copy()
+            F = prob.free_energy(lam, tb, tl)
+            return FWFrameResult(tau_bits=tb, tau_local=tl, free_energy=F, gap=math.inf,
+                                 relative_gap=math.inf, iterations=1, oracle_calls=1,
+                                 oracle_seconds=seconds, seconds=seconds, status=status)
+        tb = np.clip(np.asarray(sol.bits, dtype=np.float64), 0.0, 1.0)
+        tl = np.clip(np.asarray(sol.local, dtype=np.float64), 0.0, 1.0)
+        tb[tb < 1e-9] = 0.0  # snap the solver's round-off of the vertex
+        tb[tb > 1 - 1e-9] = 1.0
+        tl[tl < 1e-9] = 0.0
+        F = prob.free_energy(lam, tb, tl)
+        entropy = float(lam @ tb) - F
+        cert = max(prob.entropy_bound() - entropy, 0.0)
+        return FWFrameResult(tau_bits=tb, tau_local=tl, free_energy=F, gap=cert,
+                             relative_gap=_relative(cert, F), iterations=1, oracle_calls=1,
+                             oracle_seconds=seconds, seconds=seconds, status="low_temperature",
+                             certified_gap=cert)
+
+    def solve_one(self, llr_row) -> FWFrameResult:
+        """Run the solver on one frame of channel LLRs (n,) and return the full record.
+
+        Frames with ``max |LLR| > LOW_TEMPERATURE_LLR`` go to
+        :meth:`solve_low_temperature` (status ``"low_temperature"``).
+        """
+        lam = np.ascontiguousarray(llr_row, dtype=np.float64)
+        if lam.size and float(np.max(np.abs(lam))) > LOW_TEMPERATURE_LLR:
+            return self.solve_low_temperature(lam)
         o = self.options
         t0 = time.perf_counter()
         start = self._start(lam)
