@@ -116,6 +116,12 @@ _GENERIC, _TO_ONE, _PAIR, _NONE = 0, 1, 2, 3
 #: ``F`` is then within ``entropy_bound`` of the LP-decoding optimum.
 LOW_TEMPERATURE_LLR = 300.0
 
+#: Settings of the batched certified route (measured in experiments/bench_certified.py):
+#: Anderson memory 5 on layered sweeps to a 1e-10 message change, then a certificate
+#: (3 dual-ascent sweeps from the message multipliers) every 15 further sweeps, 4 times.
+_BATCHED_SETTINGS = {"anderson": 5, "tol": 1e-10, "polish_rounds": 4, "check_every": 15,
+                     "linear": True, "sweeps": 3}
+
 _VARIANTS = ("vanilla", "away", "pairwise", "contracted")
 _ORACLES = ("lp", "ml", "dual")
 _WARM = ("auto", "uniform", "reweighted-sum-product")
@@ -1008,6 +1014,18 @@ class FrankWolfeDecoder(Decoder):
         Hyperforest sampling for ``entropy="trw"``.
     max_check_degree : int
 
+    route : {"auto", "per-frame"}
+        ``"auto"`` (default): when ``F`` is convex (TRW or a user ``rho`` with
+        guaranteed concavity), the warm start is reweighted sum-product, the
+        certificate is on, no trace is asked for and every check has degree
+        >= 3, all frames first go through the batched certified route
+        (:meth:`_solve_batched`: numba kernels parallel over frames); frames it
+        does not certify within its sweep cap fall back to the per-frame solver.
+        Batched frames report ``oracle_calls = 0``, ``duality_gap =
+        certified_gap`` and the batch's wall time divided by its frames as
+        ``seconds``; ``info["route"]`` says which route each frame took.
+        ``"per-frame"``: always the per-frame solver.
+
     Frames with ``max |LLR| > LOW_TEMPERATURE_LLR`` (300) are solved at zero
     temperature (:meth:`solve_low_temperature`): the LP-decoding vertex, status
     ``"low_temperature"``, with a certified gap from the entropy bound.
@@ -1063,6 +1081,8 @@ class FrankWolfeDecoder(Decoder):
         "trw_seed": Param("int", 0, low=0, doc="seed of the hyperforest sampler"),
         "max_check_degree": Param("int", DEFAULT_MAX_CHECK_DEGREE, low=1,
                                   doc="refuse checks of larger degree"),
+        "route": Param("choice", "auto", choices=("auto", "per-frame"),
+                       doc="auto: batched certified route for convex F, per-frame fallback"),
     }
 
     def _setup(self) -> None:
@@ -1123,6 +1143,7 @@ class FrankWolfeDecoder(Decoder):
         state["_mp"] = None
         state["_dual"] = None
         state["_lp_zero_t"] = None
+        state["_batch"] = None
         return state
 
     def _get_oracle(self):
@@ -1166,6 +1187,54 @@ class FrankWolfeDecoder(Decoder):
         if not (np.all(np.isfinite(tb)) and np.all(np.isfinite(tl))):
             return None             # beliefs too close to 0/1 to repair: uniform start
         return tb, tl
+
+    def _batched_route_ok(self) -> bool:
+        o = self.options
+        return (o["route"] != "per-frame" and self.convex and o["oracle"] != "ml"
+                and self.start_kind == "reweighted-sum-product"
+                and o["certificate"] == "lagrangian" and not o["trace"]
+                and self.code.m > 0 and int(self.code.check_degrees.min()) >= 3)
+
+    def _solve_batched(self, llr) -> list:
+        """The batched certified route (``route="auto"``, convex F) on all frames at once.
+
+        Returns one :class:`FWFrameResult` per frame certified by
+        :class:`ldpcmarg.decoders.certified.CertifiedTRW` (Anderson-accelerated
+        layered reweighted sum-product, projection onto ``L``, linear Lagrangian
+        certificate with multipliers from the messages, checked every
+        ``check_every`` sweeps), ``None`` for frames left to the per-frame path
+        (not certified within the sweep cap, or low-temperature frames). The
+        batch's wall time per phase is kept in ``self.last_phase_seconds``.
+        """
+        F = llr.shape[0]
+        out: list = [None] * F
+        self.last_phase_seconds = {"warm_start": 0.0, "certificate": 0.0, "polish": 0.0}
+        if not self._batched_route_ok() or F == 0:
+            return out
+        low = np.max(np.abs(llr), axis=1) > LOW_TEMPERATURE_LLR
+        idx = np.flatnonzero(~low)
+        if idx.size == 0:
+            return out
+        if getattr(self, "_batch", None) is None:
+            from .certified import CertifiedTRW
+
+            self._batch = CertifiedTRW(self.code, self.rho, lc=self._prob.lc, **_BATCHED_SETTINGS,
+                                       max_iter=min(self.options["warm_iter"], 2000))
+        o = self.options
+        t0 = time.perf_counter()
+        res = self._batch.run(llr[idx], gap_tol=o["gap_tol"], abs_gap_tol=o["abs_gap_tol"])
+        per_frame = (time.perf_counter() - t0) / idx.size
+        self.last_phase_seconds = dict(res.seconds)
+        for k, f in enumerate(idx):
+            if not res.certified[k]:
+                continue
+            gap = float(res.certified_gap[k])
+            fv = float(res.free_energy[k])
+            out[f] = FWFrameResult(tau_bits=res.tau_bits[k], tau_local=res.tau_local[k],
+                                   free_energy=fv, gap=gap, relative_gap=_relative(gap, fv),
+                                   iterations=0, oracle_calls=0, oracle_seconds=0.0,
+                                   seconds=per_frame, status="converged", certified_gap=gap)
+        return out
 
     def solve_low_temperature(self, llr_row) -> FWFrameResult:
         """Zero-temperature solve of one frame: the LP-decoding optimum and its certificate.
@@ -1256,8 +1325,15 @@ class FrankWolfeDecoder(Decoder):
         info["status"] = np.empty(F, dtype=object)
         info["convex"] = np.full(F, self.convex)
         traces = []
+        results = self._solve_batched(llr)
+        info["route"] = np.array(["batched" if r is not None else "per-frame" for r in results],
+                                 dtype=object)
         for f in range(F):
-            r = self.solve_one(llr[f])
+            r = results[f]
+            if r is None:
+                r = self.solve_one(llr[f])
+                if r.status == "low_temperature":
+                    info["route"][f] = "low_temperature"
             t = r.tau_bits
             post[f] = np.log(np.maximum(1.0 - t, _TINY)) - np.log(np.maximum(t, _TINY))
             iters[f] = r.iterations
@@ -1272,6 +1348,7 @@ class FrankWolfeDecoder(Decoder):
                 cert[f] = r.certified_gap
             traces.append(r.trace)
         info["status"] = info["status"].astype(str)
+        info["route"] = info["route"].astype(str)
         have_cert = bool(np.all(np.isfinite(cert)))
         if have_cert:
             info["certified_gap"] = cert
