@@ -46,11 +46,17 @@ Measured (``experiments/fw_convergence.py``, ``experiments/bench_frank_wolfe.py`
 from the uniform point no variant reaches a relative gap of 1e-4 in 15 s on
 the PEG (3,6) n = 504 code (HiGHS calls of 1–5 s each, > 99 % of the time);
 started from converged reweighted sum-product beliefs, one oracle call
-certifies the point, so the warm start is the default. Its cost against
-sum-product (same thread count, batched and single-frame) is measured by
-``experiments/bench_certified.py``; see ``experiments/results/bench_certified.md``
-(tens to hundreds of times sum-product's batched per-frame time, most of it
-the warm start to a 1e-12 fixed point).
+certifies the point, so the warm start is the default. For convex ``F`` the
+default route is batched (option ``route``): Anderson-accelerated layered
+reweighted sum-product, projection onto ``L`` and the linear Lagrangian
+certificate as numba kernels parallel over frames
+(:class:`ldpcmarg.decoders.certified.CertifiedTRW`), with this per-frame
+solver as fallback. Its cost against sum-product (same thread count, batched
+and single-frame) is measured by ``experiments/bench_certified.py``; see
+``experiments/results/bench_certified.md``.
+
+Frames with LLRs beyond ``LOW_TEMPERATURE_LLR`` are solved at zero
+temperature (the LP-decoding vertex, status ``"low_temperature"``).
 
 The duality gap ``g = <grad F(tau), tau - s>`` (``s`` the oracle vertex) bounds
 ``F(tau) - F*`` from above when ``F`` is convex. For non-convex (Bethe) ``F`` it
