@@ -85,3 +85,37 @@ def test_cold_run_whose_first_oracle_call_fails_reports_inf_gap():
     assert r.status == "time_limit"
     assert r.gap == math.inf and r.relative_gap == math.inf
     assert r.certified_gap is None
+
+
+def test_fw_batched_route_certificate_bounds_suboptimality_and_ln_z():
+    # fw's default route for convex F: Anderson-accelerated layered TRW, projection,
+    # linear Lagrangian certificate. The certified gap must be >= F(tau) - F* (weak
+    # duality, Boyd & Vandenberghe 2004 §5.1.3) with F* from the per-frame solver run
+    # to a relative gap of 1e-11, and -(F - gap) >= ln Z (Wainwright, Jaakkola &
+    # Willsky 2005) against enumeration.
+    code = random_regular_code(24, 3, 6, 4)
+    lam = np.stack([awgn_llr(code, 0.9, 300 + s) for s in range(4)])
+    dec = lm.make_decoder("fw", code, entropy="trw", gap_tol=1e-4)
+    res = dec.decode(lam)
+    assert np.all(res.info["route"] == "batched")
+    assert np.all(res.info["status"] == "converged")
+    ref = lm.make_decoder("fw", code, entropy="trw", gap_tol=1e-11, max_iter=400,
+                          route="per-frame").decode(lam)
+    assert np.all(ref.info["route"] == "per-frame")
+    subopt = res.info["free_energy"] - ref.info["free_energy"]
+    assert np.all(res.info["certified_gap"] >= subopt - 1e-12)
+    assert np.all(res.info["relative_gap"] <= 1e-4)
+    # same marginals as the reference to the accuracy the gap allows
+    assert np.allclose(res.posterior_llr, ref.posterior_llr, atol=1e-2)
+    for f in range(lam.shape[0]):
+        assert res.info["log_partition_bound"][f] >= brute_force(code, lam[f])[1]
+
+
+def test_fw_batched_route_hands_uncertified_frames_to_the_per_frame_solver():
+    # a zero tolerance cannot be met by the loose batched certificate: every frame
+    # must come back from the per-frame solver, with its own status
+    code = random_regular_code(24, 3, 6, 4)
+    lam = np.stack([awgn_llr(code, 0.9, 300 + s) for s in range(2)])
+    res = lm.make_decoder("fw", code, entropy="trw", gap_tol=0.0, max_iter=5).decode(lam)
+    assert np.all(res.info["route"] == "per-frame")
+    assert np.all(res.info["oracle_calls"] >= 1)

@@ -301,3 +301,35 @@ def test_refuses_llrs_beyond_saturation_and_survives_at_it():
     res = dec.decode(np.clip(llr * 1e4, -LLR_MAX, LLR_MAX))
     assert np.all(np.isfinite(res.posterior_llr))
     assert np.array_equal(res.valid, np.asarray(code.is_codeword(res.bits)).reshape(-1))
+
+
+@pytest.mark.parametrize("entropy", ["trw", "bethe"])
+def test_low_temperature_frames_give_the_lp_optimum_never_a_false_success(entropy):
+    # Scaled AWGN LLRs (x1e4, clipped at LLR_MAX) on Golay(24,12). As the LLR scale
+    # grows, min_L <lam, tau> - H(tau) tends to LP decoding (the entropy is bounded,
+    # Wainwright & Jordan 2008, ch. 8, zero-temperature limit; from memory); the exact bitwise MAP
+    # tends to block ML. fw must return the LP vertex with status "low_temperature",
+    # honest valid flags, and a valid word only where it is the exact MAP word.
+    code = golay24()
+    ch = lm.make_channel("awgn", ebn0_db=2.0, rate=code.rate)
+    llr = ch.sample_llr(np.zeros((6, code.n), np.uint8), np.random.default_rng(3))
+    llr = np.clip(llr * 1e4, -LLR_MAX, LLR_MAX)
+    dec = lm.make_decoder("fw", code, entropy=entropy)
+    res = dec.decode(llr)
+    lp = lm.make_decoder("lp", code).decode(llr)
+    exact = lm.make_decoder("exact", code).decode(llr)
+    assert np.all(res.info["status"] == "low_temperature")
+    tau = 1.0 / (1.0 + np.exp(np.clip(res.posterior_llr, -700, 700)))
+    assert np.allclose(tau, lp.info["pseudo_codeword"], atol=1e-9)
+    assert np.array_equal(res.valid, np.asarray(code.is_codeword(res.bits)).reshape(-1))
+    # where the LP optimum is integral (ML certificate, Feldman et al. 2005) the word
+    # is the ML word, which is the exact bitwise MAP word at this scale
+    cert = lp.info["ml_certificate"]
+    assert cert.any() and (~cert).any()  # both cases occur in these frames
+    assert np.array_equal(res.bits[cert], exact.bits[cert])
+    assert not np.any(res.valid & ~(res.bits == exact.bits).all(axis=1))
+    # F* >= LP* - Hmax, so the certified gap and (TRW) the ln Z bound stay valid
+    assert np.all(np.isfinite(res.info["certified_gap"]))
+    if entropy == "trw":
+        for f in range(llr.shape[0]):
+            assert res.info["log_partition_bound"][f] >= brute_force(code, llr[f])[1]

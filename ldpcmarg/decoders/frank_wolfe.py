@@ -46,11 +46,17 @@ Measured (``experiments/fw_convergence.py``, ``experiments/bench_frank_wolfe.py`
 from the uniform point no variant reaches a relative gap of 1e-4 in 15 s on
 the PEG (3,6) n = 504 code (HiGHS calls of 1–5 s each, > 99 % of the time);
 started from converged reweighted sum-product beliefs, one oracle call
-certifies the point, so the warm start is the default. Its cost against
-sum-product (same thread count, batched and single-frame) is measured by
-``experiments/bench_certified.py``; see ``experiments/results/bench_certified.md``
-(tens to hundreds of times sum-product's batched per-frame time, most of it
-the warm start to a 1e-12 fixed point).
+certifies the point, so the warm start is the default. For convex ``F`` the
+default route is batched (option ``route``): Anderson-accelerated layered
+reweighted sum-product, projection onto ``L`` and the linear Lagrangian
+certificate as numba kernels parallel over frames
+(:class:`ldpcmarg.decoders.certified.CertifiedTRW`), with this per-frame
+solver as fallback. Its cost against sum-product (same thread count, batched
+and single-frame) is measured by ``experiments/bench_certified.py``; see
+``experiments/results/bench_certified.md``.
+
+Frames with LLRs beyond ``LOW_TEMPERATURE_LLR`` are solved at zero
+temperature (the LP-decoding vertex, status ``"low_temperature"``).
 
 The duality gap ``g = <grad F(tau), tau - s>`` (``s`` the oracle vertex) bounds
 ``F(tau) - F*`` from above when ``F`` is convex. For non-convex (Bethe) ``F`` it
@@ -109,6 +115,21 @@ _FULL_STEP = 1.0 - 1e-12
 
 # per-check direction kinds of the line-search kernel
 _GENERIC, _TO_ONE, _PAIR, _NONE = 0, 1, 2, 3
+
+#: Frames whose largest |LLR| exceeds this are solved at zero temperature (status
+#: ``"low_temperature"``): a local codeword spanning three such bits then has a
+#: probability below exp(-900), under float64's smallest subnormal (about
+#: exp(-745)), so the free energy and its gradient (logs floored at 1e-300, i.e.
+#: -690.8) can no longer be evaluated faithfully, while the entropy (at most
+#: ``entropy_bound`` nats) is negligible against the linear term: the optimum of
+#: ``F`` is then within ``entropy_bound`` of the LP-decoding optimum.
+LOW_TEMPERATURE_LLR = 300.0
+
+#: Settings of the batched certified route (measured in experiments/bench_certified.py):
+#: Anderson memory 5 on layered sweeps to a 1e-10 message change, then a certificate
+#: (3 dual-ascent sweeps from the message multipliers) every 15 further sweeps, 4 times.
+_BATCHED_SETTINGS = {"anderson": 5, "tol": 1e-10, "polish_rounds": 4, "check_every": 15,
+                     "linear": True, "sweeps": 3}
 
 _VARIANTS = ("vanilla", "away", "pairwise", "contracted")
 _ORACLES = ("lp", "ml", "dual")
@@ -314,6 +335,19 @@ class FWProblem:
         self.uniform_local = 1.0 / counts[self.lc.owner]
         self.uniform_bits = np.full(self.n, 0.5)
         self.uniform_bits[code.var_degrees == 0] = 0.5
+
+    def entropy_bound(self) -> float:
+        """Upper bound on ``H_rho(tau)`` over ``L`` (nats).
+
+        ``sum_c rho_c ln(#local codewords of c) + sum_i max(kappa_i, 0) ln 2``:
+        each check entropy is at most the log of its number of local codewords,
+        each bit entropy at most ``ln 2`` (and >= 0, so bits with ``kappa_i < 0``
+        add at most 0). Hence ``F(tau) >= LP* - entropy_bound`` on ``L`` for any
+        ``rho >= 0``, convex or not (``LP*`` the LP-decoding optimum).
+        """
+        counts = np.diff(self.offset).astype(np.float64)
+        return float(self.rho @ np.log(np.maximum(counts, 1.0))
+                     + math.log(2.0) * np.maximum(self.kappa, 0.0).sum())
 
     def free_energy(self, lam, tb, tl) -> float:
         """``F(tau)`` for LLRs ``lam`` (n,) at ``(tb (n,), tl (L,))``."""
@@ -611,7 +645,10 @@ class FWFrameResult:
         ``"vertex"`` (F not known to be convex, started away from every vertex
         and ended at an integral one: a Bethe trap, not marginals),
         ``"max_iter"``, ``"time_limit"``, ``"stalled"`` (line search made no
-        progress) or ``"oracle_failed"``.
+        progress), ``"oracle_failed"``, or ``"low_temperature"`` (LLRs beyond
+        ``LOW_TEMPERATURE_LLR``: the LP-decoding vertex, within ``certified_gap``
+        of the optimum; its hard decisions are the LP decoder's, a
+        pseudo-codeword when fractional).
     eps : float
         Final contraction (variant "contracted").
     certified_gap : float or None
@@ -988,6 +1025,22 @@ class FrankWolfeDecoder(Decoder):
         Hyperforest sampling for ``entropy="trw"``.
     max_check_degree : int
 
+    route : {"auto", "per-frame"}
+        ``"auto"`` (default): when ``F`` is convex (TRW or a user ``rho`` with
+        guaranteed concavity), the warm start is reweighted sum-product, the
+        certificate is on, no trace is asked for and every check has degree
+        >= 3, all frames first go through the batched certified route
+        (:meth:`_solve_batched`: numba kernels parallel over frames); frames it
+        does not certify within its sweep cap fall back to the per-frame solver.
+        Batched frames report ``oracle_calls = 0``, ``duality_gap =
+        certified_gap`` and the batch's wall time divided by its frames as
+        ``seconds``; ``info["route"]`` says which route each frame took.
+        ``"per-frame"``: always the per-frame solver.
+
+    Frames with ``max |LLR| > LOW_TEMPERATURE_LLR`` (300) are solved at zero
+    temperature (:meth:`solve_low_temperature`): the LP-decoding vertex, status
+    ``"low_temperature"``, with a certified gap from the entropy bound.
+
     Outputs
     -------
     posterior_llr : (F, n) float64
@@ -1043,6 +1096,8 @@ class FrankWolfeDecoder(Decoder):
         "trw_seed": Param("int", 0, low=0, doc="seed of the hyperforest sampler"),
         "max_check_degree": Param("int", DEFAULT_MAX_CHECK_DEGREE, low=1,
                                   doc="refuse checks of larger degree"),
+        "route": Param("choice", "auto", choices=("auto", "per-frame"),
+                       doc="auto: batched certified route for convex F, per-frame fallback"),
     }
 
     def _setup(self) -> None:
@@ -1102,6 +1157,8 @@ class FrankWolfeDecoder(Decoder):
         state["_oracle"] = None
         state["_mp"] = None
         state["_dual"] = None
+        state["_lp_zero_t"] = None
+        state["_batch"] = None
         return state
 
     def _get_oracle(self):
@@ -1146,9 +1203,108 @@ class FrankWolfeDecoder(Decoder):
             return None             # beliefs too close to 0/1 to repair: uniform start
         return tb, tl
 
-    def solve_one(self, llr_row) -> FWFrameResult:
-        """Run the solver on one frame of channel LLRs (n,) and return the full record."""
+    def _batched_route_ok(self) -> bool:
+        o = self.options
+        return (o["route"] != "per-frame" and self.convex and o["oracle"] != "ml"
+                and self.start_kind == "reweighted-sum-product"
+                and o["certificate"] == "lagrangian" and not o["trace"]
+                and self.code.m > 0 and int(self.code.check_degrees.min()) >= 3)
+
+    def _solve_batched(self, llr) -> list:
+        """The batched certified route (``route="auto"``, convex F) on all frames at once.
+
+        Returns one :class:`FWFrameResult` per frame certified by
+        :class:`ldpcmarg.decoders.certified.CertifiedTRW` (Anderson-accelerated
+        layered reweighted sum-product, projection onto ``L``, linear Lagrangian
+        certificate with multipliers from the messages, checked every
+        ``check_every`` sweeps), ``None`` for frames left to the per-frame path
+        (not certified within the sweep cap, or low-temperature frames). The
+        batch's wall time per phase is kept in ``self.last_phase_seconds``.
+        """
+        F = llr.shape[0]
+        out: list = [None] * F
+        self.last_phase_seconds = {"warm_start": 0.0, "certificate": 0.0, "polish": 0.0}
+        if not self._batched_route_ok() or F == 0:
+            return out
+        low = np.max(np.abs(llr), axis=1) > LOW_TEMPERATURE_LLR
+        idx = np.flatnonzero(~low)
+        if idx.size == 0:
+            return out
+        if getattr(self, "_batch", None) is None:
+            from .certified import CertifiedTRW
+
+            self._batch = CertifiedTRW(self.code, self.rho, lc=self._prob.lc, **_BATCHED_SETTINGS,
+                                       max_iter=min(self.options["warm_iter"], 2000))
+        o = self.options
+        t0 = time.perf_counter()
+        res = self._batch.run(llr[idx], gap_tol=o["gap_tol"], abs_gap_tol=o["abs_gap_tol"])
+        per_frame = (time.perf_counter() - t0) / idx.size
+        self.last_phase_seconds = dict(res.seconds)
+        for k, f in enumerate(idx):
+            if not res.certified[k]:
+                continue
+            gap = float(res.certified_gap[k])
+            fv = float(res.free_energy[k])
+            out[f] = FWFrameResult(tau_bits=res.tau_bits[k], tau_local=res.tau_local[k],
+                                   free_energy=fv, gap=gap, relative_gap=_relative(gap, fv),
+                                   iterations=0, oracle_calls=0, oracle_seconds=0.0,
+                                   seconds=per_frame, status="converged", certified_gap=gap)
+        return out
+
+    def solve_low_temperature(self, llr_row) -> FWFrameResult:
+        """Zero-temperature solve of one frame: the LP-decoding optimum and its certificate.
+
+        Used for frames with ``max |LLR| > LOW_TEMPERATURE_LLR``. Since
+        ``F(tau) = <lam, tau> - H_rho(tau)`` and ``0 <= H_rho <= Hmax``
+        (:meth:`FWProblem.entropy_bound`) on ``L`` for TRW weights (``H_rho <=
+        Hmax`` for any ``rho >= 0``), ``F* >= LP* - Hmax`` and the LP vertex ``v``
+        satisfies ``F(v) - F* <= Hmax - H_rho(v)``: the reported certified gap.
+        As the LLR scale grows the free-energy optimum tends to the LP optimum
+        (not to the exact bitwise MAP, which tends to block ML; both agree when
+        the LP optimum is integral, the ML certificate). A fractional vertex
+        gives a pseudo-codeword; its hard decisions are then not a codeword
+        and ``valid`` says so.
+        """
+        from .lp import LocalPolytopeLP, cost_scale
+
         lam = np.ascontiguousarray(llr_row, dtype=np.float64)
+        t0 = time.perf_counter()
+        if getattr(self, "_lp_zero_t", None) is None:
+            self._lp_zero_t = LocalPolytopeLP(self.code,
+                                              max_check_degree=self.options["max_check_degree"])
+        scale = cost_scale(lam)
+        sol = self._lp_zero_t.solve(lam * scale, warm=False, time_limit=self.options["time_limit"])
+        seconds = time.perf_counter() - t0
+        prob = self._prob
+        if not sol.optimal or not np.all(np.isfinite(sol.bits)):
+            status = "time_limit" if sol.status == "time_limit" else "oracle_failed"
+            tb, tl = prob.uniform_bits.copy(), prob.uniform_local.copy()
+            F = prob.free_energy(lam, tb, tl)
+            return FWFrameResult(tau_bits=tb, tau_local=tl, free_energy=F, gap=math.inf,
+                                 relative_gap=math.inf, iterations=1, oracle_calls=1,
+                                 oracle_seconds=seconds, seconds=seconds, status=status)
+        tb = np.clip(np.asarray(sol.bits, dtype=np.float64), 0.0, 1.0)
+        tl = np.clip(np.asarray(sol.local, dtype=np.float64), 0.0, 1.0)
+        tb[tb < 1e-9] = 0.0  # snap the solver's round-off of the vertex
+        tb[tb > 1 - 1e-9] = 1.0
+        tl[tl < 1e-9] = 0.0
+        F = prob.free_energy(lam, tb, tl)
+        entropy = float(lam @ tb) - F
+        cert = max(prob.entropy_bound() - entropy, 0.0)
+        return FWFrameResult(tau_bits=tb, tau_local=tl, free_energy=F, gap=cert,
+                             relative_gap=_relative(cert, F), iterations=1, oracle_calls=1,
+                             oracle_seconds=seconds, seconds=seconds, status="low_temperature",
+                             certified_gap=cert)
+
+    def solve_one(self, llr_row) -> FWFrameResult:
+        """Run the solver on one frame of channel LLRs (n,) and return the full record.
+
+        Frames with ``max |LLR| > LOW_TEMPERATURE_LLR`` go to
+        :meth:`solve_low_temperature` (status ``"low_temperature"``).
+        """
+        lam = np.ascontiguousarray(llr_row, dtype=np.float64)
+        if lam.size and float(np.max(np.abs(lam))) > LOW_TEMPERATURE_LLR:
+            return self.solve_low_temperature(lam)
         o = self.options
         t0 = time.perf_counter()
         start = self._start(lam)
@@ -1184,8 +1340,15 @@ class FrankWolfeDecoder(Decoder):
         info["status"] = np.empty(F, dtype=object)
         info["convex"] = np.full(F, self.convex)
         traces = []
+        results = self._solve_batched(llr)
+        info["route"] = np.array(["batched" if r is not None else "per-frame" for r in results],
+                                 dtype=object)
         for f in range(F):
-            r = self.solve_one(llr[f])
+            r = results[f]
+            if r is None:
+                r = self.solve_one(llr[f])
+                if r.status == "low_temperature":
+                    info["route"][f] = "low_temperature"
             t = r.tau_bits
             post[f] = np.log(np.maximum(1.0 - t, _TINY)) - np.log(np.maximum(t, _TINY))
             iters[f] = r.iterations
@@ -1202,6 +1365,7 @@ class FrankWolfeDecoder(Decoder):
         info["status"] = info["status"].astype(str)
         # the per-frame caps (time_limit, max_iter) stopped the solver before its tolerance
         info["capped"] = np.isin(info["status"], ("time_limit", "max_iter"))
+        info["route"] = info["route"].astype(str)
         have_cert = bool(np.all(np.isfinite(cert)))
         if have_cert:
             info["certified_gap"] = cert
