@@ -467,3 +467,20 @@ def test_fast_paths_match_general_kernel(name, opts, code96):
     b = lm.make_decoder(name, code96, max_iter=40, damping=1e-300, **opts).decode(llr)
     np.testing.assert_array_equal(a.posterior_llr, b.posterior_llr)
     np.testing.assert_array_equal(a.iterations, b.iterations)
+
+
+def test_sum_product_check_with_an_erasure_sends_exact_zeros():
+    # tanh(0/2) = 0, so every extrinsic product that contains an erased input is
+    # exactly 0 and so is the message (common practice: an erasure blocks a check);
+    # rounding in the complement form must not leak ~1e-16 into those messages.
+    from ldpcmarg.decoders.message_passing import _BIG64, _sp_magnitudes
+
+    for pos in range(6):
+        v = np.zeros(13)
+        v[:6] = [20.0, 3.0, 45.0, 0.5, 20.0, 7.0]
+        v[pos] = 0.0
+        t = np.zeros(7)
+        _sp_magnitudes(v, 6, _BIG64, LLR_MAX, t)
+        others = np.delete(t[:6], pos)
+        assert np.all(others == 0.0), (pos, others)
+        assert t[pos] > 0.0

@@ -254,7 +254,7 @@ def test_cli_writes_posteriors(tmp_path, code_file, hamming74, capsys):
     main(["posteriors", code_file, str(tmp_path / "y.csv"), "-o", str(out), "--sigma", "0.8",
           "-d", SP])
     text = capsys.readouterr().out
-    assert "4 frame(s)" in text and str(out) in text
+    assert "4 frames" in text and str(out) in text
     back = read_posteriors(out)
     direct = compute_posteriors(hamming74, SP, outputs=read_frames(tmp_path / "y.csv", n=7),
                                 channel="awgn:sigma=0.8")

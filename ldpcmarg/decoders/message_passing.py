@@ -173,20 +173,23 @@ def _sp_magnitudes(vbuf, d, big, cap, tbuf):
     for k in range(d):
         xmax = max(xmax, abs(vbuf[k]))
     if xmax <= big:
+        # q = 1 exactly once an input is an erasure (r = 1, tanh = 0): the message
+        # is then exactly 0; min(., 1) keeps rounding from pushing q above 1.
         q = 0.0
         for k in range(d):
             u = math.exp(-abs(vbuf[k]))
             r = 2.0 * u / (1.0 + u)
             tbuf[k] = q                 # q of the prefix j < k
             vbuf[d + k] = r
-            q = q + r - q * r
+            q = 1.0 if (r >= 1.0 or q >= 1.0) else min(q + r - q * r, 1.0)
         q = 0.0
         for kk in range(d):
             k = d - 1 - kk
             qf = tbuf[k]
-            qk = qf + q - qf * q        # prefix and suffix combined
+            # prefix and suffix combined
+            qk = 1.0 if (qf >= 1.0 or q >= 1.0) else min(qf + q - qf * q, 1.0)
             r = vbuf[d + k]
-            q = q + r - q * r
+            q = 1.0 if (r >= 1.0 or q >= 1.0) else min(q + r - q * r, 1.0)
             if qk <= 0.0:               # empty product (degree-1 check): certain
                 tbuf[k] = cap
             else:
