@@ -81,7 +81,7 @@ def test_tcp_address_of_an_http_server_honours_the_timeout(tmp_path, http_port):
     assert done.returncode == 2, done.stderr[-2000:]
     assert "Traceback" not in done.stderr
     lines = [ln for ln in done.stderr.splitlines() if ln.strip()]
-    assert len(lines) == 1 and "Cannot reach a Dask scheduler" in lines[0], done.stderr
+    assert len(lines) == 1 and "Cannot reach the Dask scheduler" in lines[0], done.stderr
 
 
 def test_tls_without_certificates_is_a_clear_error(http_port):

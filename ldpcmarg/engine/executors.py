@@ -398,7 +398,7 @@ class DaskExecutor(Executor):
                                                  security.get_connection_args("client")))
         except Exception as exc:  # any failure to talk is "not a reachable scheduler"
             raise ClusterError(
-                f"Cannot reach a Dask scheduler at {address} within {timeout:g} s "
+                f"Cannot reach the Dask scheduler at {address} within {timeout:g} s "
                 f"({type(exc).__name__}); is it running, and is that its address and port "
                 "(not another service)?"
             ) from None
