@@ -418,8 +418,10 @@ def read_npy_bytes(raw: bytes, what: str, err) -> np.ndarray:
             shape, fortran, dtype = npformat.read_array_header_2_0(fp)
         else:
             raise ValueError(f"unknown .npy version {version}")
-    except (ValueError, SyntaxError, TypeError, EOFError, OverflowError) as exc:
-        raise err(f"{what} is not a valid .npy array ({str(exc)[:80]}).") from None
+    except Exception as exc:  # numpy's header parser raises ValueError, SyntaxError,
+        # tokenize.TokenError, ... on damaged headers: all mean "not a valid .npy"
+        raise err(f"{what} is not a valid .npy array ({type(exc).__name__}: "
+                  f"{str(exc)[:80]}).") from None
     if dtype.hasobject or dtype.names is not None or dtype.subdtype is not None \
             or dtype.kind not in "biufUS":
         raise err(f"{what} holds {dtype} data; only plain numbers (and text labels) are "
