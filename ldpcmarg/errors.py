@@ -31,3 +31,7 @@ class StoreError(LdpcmargError):
 
 class MissingExtraError(LdpcmargError, ImportError):
     """An optional dependency is needed; the message names the extra to install."""
+
+
+class ResourceError(LdpcmargError, MemoryError):
+    """An operation would need more memory than this machine can spare (estimated first)."""

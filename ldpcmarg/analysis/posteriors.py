@@ -38,6 +38,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -45,6 +46,8 @@ from typing import Any
 import numpy as np
 from scipy.special import expit
 
+from .._memory import require_memory
+from ..code.io import check_regular_file, read_npy_bytes, read_npz_members
 from ..decoders.base import Decoder, check_llr, make_decoder
 from ..errors import InputError
 from ..link.channels import ERASED, AWGNChannel, BECChannel, BSCChannel, Channel, make_channel
@@ -137,11 +140,32 @@ def _text_delimiter(first_line: str) -> str | None:
     return None  # any whitespace
 
 
+#: A number in a text input: ASCII decimal or scientific notation, or inf/nan
+#: (refused later with a clear message). ``float()`` alone would also take
+#: ``1_0`` (= 10) and non-ASCII digits.
+_NUMBER_RE = re.compile(
+    r"[+-]?(([0-9]+\.?[0-9]*|\.[0-9]+)([eE][+-]?[0-9]+)?|inf|infinity|nan)",
+    re.ASCII | re.IGNORECASE)
+
+#: Bytes of memory per byte of a text input while it is parsed (Python floats
+#: in lists, then the float64 array).
+_TEXT_BYTES_PER_BYTE = 24
+
+
+def _input_error(path):
+    return lambda what: InputError(f"{path}: {what}")
+
+
 def _read_text(path: Path) -> np.ndarray:
+    size = check_regular_file(path, _input_error(path))
+    require_memory(_TEXT_BYTES_PER_BYTE * size, f"Parsing the text file {path}")
     try:
-        lines = path.read_text().splitlines()
+        lines = path.read_bytes().decode("utf-8").split("\n")
     except UnicodeDecodeError as exc:
         raise InputError(f"{path} is not a text file ({exc.reason}).") from exc
+    except OSError as exc:
+        raise InputError(f"{path}: cannot read the file ({exc.strerror}).") from None
+    lines = [ln[:-1] if ln.endswith("\r") else ln for ln in lines]
     data_lines = [(i, ln) for i, ln in enumerate(lines, 1)
                   if ln.strip() and not ln.lstrip().startswith("#")]
     if not data_lines:
@@ -163,11 +187,10 @@ def _read_text(path: Path) -> np.ndarray:
         toks = split(ln)
         if delim and toks and toks[-1] == "":
             toks = toks[:-1]  # trailing delimiter
-        try:
-            vals = [float(t) for t in toks]
-        except ValueError:
-            bad = next(t for t in toks if not _is_float(t))
-            raise InputError(f"{path}, line {lineno}: {bad!r} is not a number.") from None
+        bad = next((t for t in toks if not _is_float(t)), None)
+        if bad is not None:
+            raise InputError(f"{path}, line {lineno}: {bad[:40]!r} is not a number.")
+        vals = [float(t) for t in toks]
         if width is None:
             width = len(vals)
         elif len(vals) != width:
@@ -179,11 +202,7 @@ def _read_text(path: Path) -> np.ndarray:
 
 
 def _is_float(t: str) -> bool:
-    try:
-        float(t)
-        return True
-    except ValueError:
-        return False
+    return len(t) <= 400 and _NUMBER_RE.fullmatch(t) is not None
 
 
 def read_frames(path, *, key: str | None = None, n: int | None = None,
@@ -218,6 +237,7 @@ def read_frames(path, *, key: str | None = None, n: int | None = None,
         raise InputError(f"Input file {p} does not exist.")
     if p.is_dir():
         raise InputError(f"Input {p} is a directory, not a file.")
+    size = check_regular_file(p, _input_error(p))
     ext = p.suffix.lower()
     if ext not in INPUT_FORMATS:
         raise InputError(
@@ -226,37 +246,38 @@ def read_frames(path, *, key: str | None = None, n: int | None = None,
         )
     text = ext not in (".npy", ".npz")
     if ext == ".npy":
+        # read strictly: the header must match the bytes (a lying shape is refused
+        # before any allocation), no pickles, an empty file is an error
+        require_memory(2 * size, f"Reading {p}")
         try:
-            arr = np.load(p, allow_pickle=False)
-        except ValueError as exc:
-            raise InputError(f"{p} is not a plain numeric .npy array ({exc}).") from exc
+            raw = p.read_bytes()
+        except OSError as exc:
+            raise InputError(f"{p}: cannot read the file ({exc.strerror}).") from None
+        if not raw:
+            raise InputError(f"{p} is empty; expected a .npy array of channel outputs or LLRs.")
+        arr = read_npy_bytes(raw, f"{p}", lambda what: InputError(what))
     elif ext == ".npz":
-        try:
-            z = np.load(p, allow_pickle=False)
-        except (ValueError, OSError) as exc:
-            raise InputError(f"{p} is not a readable .npz archive ({exc}).") from exc
-        with z:
-            names = list(z.files)
-            if key is not None:
-                if key not in names:
-                    raise InputError(f"{p} has no array {key!r}; it holds: {', '.join(names)}.")
-                chosen = key
-            elif len(names) == 1:
-                chosen = names[0]
-            else:
-                chosen = next((k for k in prefer if k in names), None)
-                if chosen is None:
-                    raise InputError(
-                        f"{p} holds several arrays ({', '.join(names)}); name one with --key."
-                    )
-            try:
-                arr = z[chosen]
-            except ValueError as exc:
-                raise InputError(f"Array {chosen!r} in {p} is not plain numeric ({exc}).") from exc
+        z = read_npz_members(p, _input_error(p))
+        names = list(z)
+        if key is not None:
+            if key not in names:
+                raise InputError(f"{p} has no array {key!r}; it holds: {', '.join(names)}.")
+            chosen = key
+        elif len(names) == 1:
+            chosen = names[0]
+        else:
+            chosen = next((k for k in prefer if k in names), None)
+            if chosen is None:
+                raise InputError(
+                    f"{p} holds several arrays ({', '.join(names)}); name one with --key."
+                )
+        arr = z[chosen]
     else:
         arr = _read_text(p)
     if arr.dtype.kind not in "biuf":
         raise InputError(f"{p} holds {arr.dtype} data; numbers are needed.")
+    if not arr.flags.writeable:
+        arr = arr.copy()
     if n is None:
         return arr
     return _frames_2d(arr, n, str(p), allow_column=text)
@@ -391,7 +412,17 @@ def outputs_to_llr(outputs, channel: Channel, n: int) -> np.ndarray:
                 f"is {float(yf[f, i])!r}."
             )
         yf = yf.astype(np.uint8)
-    return np.ascontiguousarray(channel.llr(yf), dtype=np.float64)
+    with np.errstate(over="ignore"):
+        llr = np.ascontiguousarray(channel.llr(yf), dtype=np.float64)
+    if isinstance(channel, AWGNChannel) and not np.all(np.isfinite(llr)):
+        # 2 y / sigma^2 overflowed: the outputs themselves are the problem, not the LLRs
+        f, i = _first_where(~np.isfinite(llr))
+        raise InputError(
+            f"Channel outputs out of range: frame {f}, bit {i} is {float(yf[f, i]):.3g}, so "
+            f"its LLR 2y/sigma^2 (sigma = {channel.sigma:.4g}) overflows; BPSK samples are "
+            "about +-1 plus noise: scale the outputs, or pass LLRs (no channel option)."
+        )
+    return llr
 
 
 def _resolve_decoder(decoder, code) -> Decoder:
@@ -687,15 +718,19 @@ def read_posteriors(path, *, fmt: str | None = None) -> PosteriorResult:
     if missing:
         raise InputError(f"Posterior file {missing[0]} is missing.")
     if f == "npz":
-        with np.load(p, allow_pickle=False) as z:
-            need = ("p1", "llr", "bits", "iterations", "valid", "meta")
-            absent = [k for k in need if k not in z.files]
-            if absent:
-                raise InputError(f"{p} is not a posteriors file (no {absent[0]!r} array).")
-            info = {k[5:]: z[k] for k in z.files if k.startswith("info.")}
-            return PosteriorResult(p1=z["p1"], llr=z["llr"], bits=z["bits"],
-                                   iterations=z["iterations"], valid=z["valid"], info=info,
-                                   meta=json.loads(str(z["meta"])))
+        z = read_npz_members(p, _input_error(p))
+        need = ("p1", "llr", "bits", "iterations", "valid", "meta")
+        absent = [k for k in need if k not in z]
+        if absent:
+            raise InputError(f"{p} is not a posteriors file (no {absent[0]!r} array).")
+        info = {k[5:]: z[k] for k in z if k.startswith("info.")}
+        try:
+            meta = json.loads(str(z["meta"]))
+        except (json.JSONDecodeError, ValueError) as exc:
+            raise InputError(f"{p} has a damaged 'meta' entry ({exc}).") from None
+        return PosteriorResult(p1=z["p1"], llr=z["llr"], bits=z["bits"],
+                               iterations=z["iterations"], valid=z["valid"], info=info,
+                               meta=meta)
     try:
         side = json.loads(targets["sidecar"].read_text())
         meta = side["meta"]

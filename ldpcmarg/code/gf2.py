@@ -21,6 +21,13 @@ nullspace
 systematic_form
     Information set, parity (pivot) positions and the packed map from
     information bits to parity bits: the core of the systematic encoder.
+
+Memory: the packed work matrix of an ``r x c`` input takes ``r * c / 8``
+bytes whatever its sparsity. :func:`pack_matrix` checks that estimate
+against :func:`ldpcmarg._memory.memory_budget` (half the available memory)
+first and raises :class:`~ldpcmarg.errors.ResourceError` when it does not fit,
+so the documented limit is ``m * n <= 4 * available bytes`` (about 10^11 on a
+machine with 24 GB free, e.g. n = 4.5 * 10^5 at rate 1/2).
 """
 
 from __future__ import annotations
@@ -31,6 +38,7 @@ import numba as nb
 import numpy as np
 import scipy.sparse as sp
 
+from .._memory import require_memory
 from .._settings import NUMBA_OPTS
 from ..errors import InputError
 
@@ -119,7 +127,12 @@ def pack_matrix(M, col_order: np.ndarray | None = None) -> np.ndarray:
         inv = np.empty(c, dtype=np.int64)
         inv[col_order] = np.arange(c, dtype=np.int64)
         cols = inv[cols]
-    out = np.zeros((r, max((c + 63) // 64, 1)), dtype=np.uint64)
+    words = max((c + 63) // 64, 1)
+    # dense bit-packed work costs r * c / 8 bytes whatever the sparsity: estimate first
+    require_memory(8.0 * r * words, f"Bit-packed GF(2) work on a {r} x {c} matrix",
+                   "this code is too long for dense GF(2) elimination (rank, encoder, "
+                   "minimum distance) on this machine.")
+    out = np.zeros((r, words), dtype=np.uint64)
     _pack_coo_kernel(rows, cols, out)
     return out
 

@@ -11,8 +11,12 @@ import click
 @click.argument("store", type=click.Path(dir_okay=False))
 @click.option("--json", "as_json", is_flag=True, help="Print JSON (runs and counted results).")
 def command(store, as_json):
-    """List the runs in results STORE: settings, decoders, points and chunks."""
-    from ..engine.store import Store
+    """List the runs in results STORE: settings, decoders, points and chunks.
+
+    The store is opened read-only (also on read-only media); a run written by
+    several package versions lists them.
+    """
+    from ..engine.store import Store, version_history
 
     with Store.open_reader(store) as st:
         meta = st.meta()
@@ -35,3 +39,9 @@ def command(store, as_json):
         click.echo(f"    decoders: {', '.join(r['decoders'])}")
         click.echo(f"    {unit.get(s['snr_kind'], s['snr_kind'])}: {snr}")
         click.echo(f"    {r['chunks']} stored chunk rows, {r['decoded_frames']} decoded frames")
+        history = version_history(r["versions"])
+        if len(history) > 1:
+            keys = [k for k in sorted({k for h in history for k in h})
+                    if len({h.get(k) for h in history}) > 1]
+            written = "; then ".join(", ".join(f"{k} {h.get(k)}" for k in keys) for h in history)
+            click.echo(f"    written by several versions: {written}")

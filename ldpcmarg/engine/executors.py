@@ -255,6 +255,48 @@ class ProcessExecutor(Executor):
 
 
 # ---------------------------------------------------------------- dask
+def dask_setup(worker=None):
+    """Dask preload hook for the workers of a ``local:N`` cluster: ignore SIGINT.
+
+    Ctrl-C reaches every process of the terminal's process group; the
+    coordinator alone handles it (one line, chunks kept) and closes the
+    cluster, so the workers must not each print a KeyboardInterrupt traceback.
+    """
+    try:
+        signal.signal(signal.SIGINT, signal.SIG_IGN)
+    except ValueError:  # pragma: no cover - not the main thread of the worker
+        pass
+
+
+def _is_lost(exc: BaseException) -> bool:
+    """Did a task fail because its worker (or the scattered context) was lost?"""
+    names = {t.__name__ for t in type(exc).__mro__}
+    return bool(names & {"CancelledError", "FuturesCancelledError", "KilledWorker",
+                         "FutureCancelledError"})
+
+
+async def _probe_scheduler(address: str, timeout: float, connection_args: dict) -> dict:
+    """Speak to ``address`` as a Dask client would, giving up after ``timeout`` s.
+
+    ``distributed.Client`` can wait far longer than its ``timeout`` when the
+    port is served by something else (an HTTP server accepts the connection
+    and never answers the handshake); this bounded probe comes first.
+    """
+    import asyncio
+
+    from distributed.comm import connect
+
+    async def talk():
+        comm = await connect(address, timeout=timeout, **connection_args)
+        try:
+            await comm.write({"op": "identity", "reply": True})
+            return await comm.read()
+        finally:
+            comm.abort()
+
+    return await asyncio.wait_for(talk(), timeout)
+
+
 def _dask_call(func, context, task):
     _one_numba_thread()  # numba's thread count is per calling thread
     return func(context, task)
@@ -296,6 +338,9 @@ class DaskExecutor(Executor):
 
     label = "dask"
 
+    #: Seconds to wait for a lost chunk's recompute (a worker must come back).
+    recompute_timeout = 300.0
+
     def __init__(self, address: str, connect_timeout: float = 10.0, retries: int = 3):
         distributed = _import_distributed()
         self._distributed = distributed
@@ -303,7 +348,10 @@ class DaskExecutor(Executor):
         self._retries = int(retries)
         self._cluster = None
         self._ctx_future = None
+        self._context = None
         self._func = None
+        self._tasks: dict = {}
+        security = None
         if address.startswith("local:"):
             try:
                 n = int(address.split(":", 1)[1])
@@ -311,21 +359,27 @@ class DaskExecutor(Executor):
                 n = 0
             if n < 1:
                 raise InputError(f"--cluster local:N needs a worker count N >= 1; got {address!r}.")
-            import logging
-
-            self._cluster = distributed.LocalCluster(
-                n_workers=n, threads_per_worker=1, processes=True, host="127.0.0.1",
-                dashboard_address=None, silence_logs=logging.ERROR)
+            self._cluster = _local_cluster(distributed, n)
             target = self._cluster
         elif address.startswith(("tcp://", "tls://")):
             target = address
+            security = distributed.Security()
+            if address.startswith("tls://") and \
+                    security.get_connection_args("client").get("ssl_context") is None:
+                raise ClusterError(
+                    f"Cannot connect to {address}: a tls:// scheduler needs TLS certificates, "
+                    "and none are configured; set distributed.comm.tls.ca-file, "
+                    "distributed.comm.tls.client.cert and .key in the Dask configuration, or "
+                    "use tcp:// (e.g. through an SSH tunnel).")
+            self._probe(address, connect_timeout, security)
         else:
             raise InputError(
                 f"Unknown cluster address {address!r}; use tcp://HOST:PORT or local:N.")
         try:
             self._client = distributed.Client(target, timeout=connect_timeout,
-                                              set_as_default=False)
-        except (OSError, TimeoutError) as exc:
+                                              set_as_default=False,
+                                              **({"security": security} if security else {}))
+        except (OSError, TimeoutError, TypeError, ValueError) as exc:
             if self._cluster is not None:
                 self._cluster.close()
             raise ClusterError(
@@ -336,17 +390,36 @@ class DaskExecutor(Executor):
         self.workers = nthreads
         self.capacity = 2 * nthreads
 
+    def _probe(self, address, timeout, security):
+        import asyncio
+
+        try:
+            reply = asyncio.run(_probe_scheduler(address, timeout,
+                                                 security.get_connection_args("client")))
+        except Exception as exc:  # any failure to talk is "not a reachable scheduler"
+            raise ClusterError(
+                f"Cannot reach the Dask scheduler at {address} within {timeout:g} s "
+                f"({type(exc).__name__}); is it running, and is that its address and port "
+                "(not another service)?"
+            ) from None
+        if not isinstance(reply, dict) or reply.get("type") != "Scheduler":
+            raise ClusterError(f"{address} answered, but not as a Dask scheduler; check the "
+                               "address and port.")
+
     @property
     def client(self):
         return self._client
 
     def start(self, func, context):
         self._func = func
+        self._context = context
         self._ctx_future = self._client.scatter(context, broadcast=True, hash=False)
 
     def submit(self, task):
-        return self._client.submit(_dask_call, self._func, self._ctx_future, task,
-                                   pure=False, retries=self._retries)
+        fut = self._client.submit(_dask_call, self._func, self._ctx_future, task,
+                                  pure=False, retries=self._retries)
+        self._tasks[fut.key] = task
+        return fut
 
     def wait(self, handles, timeout):
         done = [h for h in handles if h.done()]
@@ -361,13 +434,57 @@ class DaskExecutor(Executor):
         except Exception as exc:  # dask raises its own TimeoutError subclass on some versions
             if "Timeout" in type(exc).__name__:
                 return []
+            if _is_lost(exc):  # a worker died: hand back the lost chunks for recompute
+                return [h for h in handles if h.status in ("cancelled", "error", "lost")] \
+                    or [h for h in handles if h.done()] or handles[:1]
             raise
         return list(res.done)
 
     def result(self, handle):
-        return handle.result()
+        task = self._tasks.pop(handle.key, None)
+        try:
+            return handle.result()
+        except Exception as exc:
+            if task is None or not _is_lost(exc):
+                raise
+            return self._recompute(task)
+
+    def _recompute(self, task):
+        """Run a chunk again after its worker (and maybe the scattered context) was lost.
+
+        The chunk's result is fixed by its seed, so the recompute gives the
+        counts the lost run would have given.
+        """
+        deadline = time.monotonic() + self.recompute_timeout
+        last = None
+        for _ in range(max(self._retries, 1)):
+            if self._ctx_future is None or self._ctx_future.status != "finished":
+                try:
+                    self._ctx_future = self._client.scatter(self._context, broadcast=True,
+                                                            hash=False)
+                except Exception as exc:  # no worker yet: wait and try again
+                    last = exc
+                    time.sleep(1.0)
+                    if time.monotonic() > deadline:
+                        break
+                    continue
+            fut = self._client.submit(_dask_call, self._func, self._ctx_future, task,
+                                      pure=False, retries=self._retries)
+            try:
+                return fut.result(timeout=max(deadline - time.monotonic(), 1.0))
+            except Exception as exc:
+                last = exc
+                if not _is_lost(exc) or time.monotonic() > deadline:
+                    break
+        raise ClusterError(
+            f"A chunk was lost with its Dask worker and could not be recomputed "
+            f"({type(last).__name__ if last else 'timeout'}); completed chunks are kept in the "
+            "store, run the same command again to continue."
+        )
 
     def cancel(self, handles):
+        for h in handles:
+            self._tasks.pop(h.key, None)
         if handles:
             self._client.cancel(handles)
         return []
@@ -385,6 +502,26 @@ class DaskExecutor(Executor):
             except Exception:  # pragma: no cover
                 pass
             self._cluster = None
+
+
+def _local_cluster(distributed, n: int):
+    """A loopback LocalCluster with no dashboard and workers that ignore Ctrl-C.
+
+    ``dashboard_address=None`` still leaves the scheduler's HTTP server (health
+    and metrics routes) on the default port 8787; with no routes configured
+    and an ephemeral loopback port, nothing is served there.
+    """
+    import logging
+
+    import dask
+
+    with dask.config.set({"distributed.scheduler.http.routes": [],
+                          "distributed.worker.http.routes": []}):
+        return distributed.LocalCluster(
+            n_workers=n, threads_per_worker=1, processes=True, host="127.0.0.1",
+            dashboard_address=None, worker_dashboard_address=None,
+            scheduler_kwargs={"dashboard": False, "dashboard_address": "127.0.0.1:0"},
+            silence_logs=logging.CRITICAL, preload=[__name__])
 
 
 def make_executor(workers: int | None = None, cluster: str | None = None) -> Executor:

@@ -24,27 +24,55 @@ without them as holding none.
 
 Concurrency
 -----------
-The coordinating process is the only writer. It holds an exclusive
-``flock`` on ``<store>.lock`` for as long as the store is open for writing, so
-a second writer gets a clear :class:`StoreError` at once (the lock goes away
-with the process, even after SIGKILL). Each completed chunk is written in one
-``BEGIN IMMEDIATE`` transaction; the database runs in WAL mode, so readers
-(``ldpcmarg runs``, ``ldpcmarg plot``) never block the writer, and a killed
-writer leaves every committed chunk intact.
+The coordinating process is the only writer. It holds an exclusive advisory
+``flock`` on the database file itself for as long as the store is open for
+writing. The lock belongs to the file (its device and inode), not to the path
+string, so a second writer reaching the same file through a hard link or a
+symbolic link gets a clear :class:`StoreError` at once; the lock goes away
+with the process, even after SIGKILL, and leaves no lock file behind. (Older
+versions kept a ``<store>.lock`` file; it is no longer used.) Each completed
+chunk is written in one ``BEGIN IMMEDIATE`` transaction; the database runs in
+WAL mode, so readers (``ldpcmarg runs``, ``ldpcmarg plot``) never block the
+writer, and a killed writer leaves every committed chunk intact.
+
+Failures
+--------
+Every SQLite failure becomes one :class:`StoreError` sentence: a full disk or
+a file-size limit (``ulimit -f``) says so and that the chunks already stored
+are intact; a damaged file is found by ``PRAGMA quick_check`` when a writer
+opens it; a foreign SQLite database (one with tables that are not a results
+store) is refused unchanged; an empty file is a new store. Readers open with
+``mode=ro`` and, when that is impossible (read-only media or folder, where
+WAL mode cannot create its ``-shm`` file), with ``immutable=1``.
+
+Versions
+--------
+A run records the package versions (ldpcmarg, numpy, numba, scipy) of every
+process that wrote to it, in order. Resuming with different versions logs a
+warning (logger ``ldpcmarg.store``) naming both; the stored chunks are reused.
 """
 
 from __future__ import annotations
 
 import datetime as _dt
+import functools
 import hashlib
 import json
+import logging
 import os
 import sqlite3
+import stat
+import urllib.parse
 from dataclasses import dataclass
 
 from ..errors import StoreError
 
-__all__ = ["Store", "COUNT_FIELDS", "SCHEMA_VERSION"]
+__all__ = ["Store", "COUNT_FIELDS", "SCHEMA_VERSION", "STORE_TABLES"]
+
+_log = logging.getLogger("ldpcmarg.store")
+
+#: Tables of a results store; a database holding other tables is refused.
+STORE_TABLES = ("meta", "runs", "points", "chunks", "results")
 
 #: 2 adds ``ml_lower_bound_frame_errors`` (version-1 stores are refused with a message).
 SCHEMA_VERSION = 2
@@ -136,6 +164,96 @@ def _now() -> str:
     return _dt.datetime.now(_dt.UTC).isoformat(timespec="seconds")
 
 
+def _code_of(exc: BaseException | None) -> int | None:
+    """Primary SQLite result code of an exception (None if unknown)."""
+    code = getattr(exc, "sqlite_errorcode", None)
+    return None if code is None else int(code) & 0xFF
+
+
+def _store_error(path, what: str, exc: BaseException | None) -> StoreError:
+    """One clear sentence for an SQLite failure while ``what``."""
+    code = _code_of(exc)
+    text = str(exc) if exc is not None else "unknown error"
+    if code == sqlite3.SQLITE_FULL or "disk is full" in text or code == sqlite3.SQLITE_IOERR:
+        cause = ("the disk is full (or a file-size limit such as 'ulimit -f' was reached)"
+                 if code == sqlite3.SQLITE_FULL or "full" in text else
+                 "the disk is full, a file-size limit such as 'ulimit -f' was reached, or the "
+                 f"medium failed ({text})")
+        return StoreError(
+            f"Writing to the store {path!r} failed while {what}: {cause}. Nothing stored was "
+            "lost: every chunk recorded before this point is intact; free some space and run "
+            "the same command again to continue.")
+    if code in (sqlite3.SQLITE_CORRUPT, sqlite3.SQLITE_NOTADB):
+        return StoreError(
+            f"The store {path!r} is damaged ({text}); restore it from a copy, or start a new "
+            "--store file.")
+    if code == sqlite3.SQLITE_READONLY:
+        return StoreError(f"The store {path!r} is read-only ({text}); copy it to a writable "
+                          "place to continue it.")
+    if code == sqlite3.SQLITE_CANTOPEN:
+        return StoreError(f"Cannot open the store {path!r} ({text}).")
+    return StoreError(f"The store {path!r} is not usable while {what}: {text}.")
+
+
+class _sql_errors:
+    """Context manager turning sqlite3 errors into one StoreError."""
+
+    def __init__(self, path, what: str):
+        self.path, self.what = path, what
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, exc_type, exc, tb):
+        if exc_type is not None and issubclass(exc_type, sqlite3.Error):
+            raise _store_error(self.path, self.what, exc) from exc
+        return False
+
+
+def _guard_reads(method):
+    @functools.wraps(method)
+    def wrapper(self, *args, **kwargs):
+        with _sql_errors(self.path, "reading it"):
+            return method(self, *args, **kwargs)
+    return wrapper
+
+
+def _rollback(conn: sqlite3.Connection) -> None:
+    if conn.in_transaction:
+        try:
+            conn.execute("ROLLBACK")
+        except sqlite3.Error:
+            pass  # the original error is the one to report
+
+
+def version_history(stored: dict) -> list[dict]:
+    """The version sets that wrote to a run, oldest first (from its ``versions`` entry)."""
+    if not isinstance(stored, dict):
+        return []
+    hist = stored.get("history")
+    if isinstance(hist, list) and hist:
+        return [dict(h) for h in hist if isinstance(h, dict)]
+    plain = {k: v for k, v in stored.items() if k != "history"}
+    return [plain] if plain else []
+
+
+def _with_history(first: dict, history: list[dict]) -> dict:
+    out = dict(first)
+    out["history"] = list(history)
+    return out
+
+
+def _version_notice(run_id: int, path, old: dict, new: dict) -> str:
+    changed = [k for k in sorted(set(old) | set(new)) if old.get(k) != new.get(k)]
+
+    def fmt(v):
+        return ", ".join(f"{k} {v.get(k)}" for k in changed)
+
+    return (f"Warning: run {run_id} in {path} was last written with {fmt(old)}; this is "
+            f"{fmt(new)}. Its stored chunks are reused as they are; both versions are now "
+            "recorded in the run (see 'ldpcmarg runs').")
+
+
 @dataclass(frozen=True)
 class StoredChunk:
     """Counts of one stored chunk for one decoder (fields as in ``COUNT_FIELDS``)."""
@@ -156,6 +274,8 @@ class Store:
         self._conn = conn
         self.path = path
         self._lock_fd = lock_fd
+        #: Warnings raised while writing (e.g. a run resumed with other versions).
+        self.notices: list[str] = []
 
     # ------------------------------------------------------------ opening
     @classmethod
@@ -173,9 +293,11 @@ class Store:
         Raises
         ------
         StoreError
-            Path unusable or unwritable, file not a store, store held by
-            another writer, or store made for a different code. Nothing in
-            an existing store is changed when this is raised.
+            Path unusable or unwritable, file not a store (or a foreign
+            SQLite database), file damaged, store held by another writer
+            (through any path, hard or symbolic link), or store made for a
+            different code. Nothing in an existing store is changed when this
+            is raised.
         """
         path = os.fspath(path)
         parent = os.path.dirname(os.path.abspath(path)) or "."
@@ -185,56 +307,73 @@ class Store:
             raise StoreError(
                 f"Cannot create the store {path!r}: directory {parent!r} does not exist.")
         exists = os.path.exists(path)
+        if exists and not stat.S_ISREG(os.stat(path).st_mode):
+            raise StoreError(f"The store {path!r} is not a regular file; give a file name.")
         if exists and not os.access(path, os.R_OK | os.W_OK):
             raise StoreError(f"The store {path!r} is not writable.")
-        if not os.access(parent, os.W_OK):
+        real_parent = os.path.dirname(os.path.realpath(path)) or "."
+        if not os.access(real_parent, os.W_OK):
             raise StoreError(
-                f"Cannot write the store {path!r}: directory {parent!r} is not writable.")
-        lock_fd = _acquire_lock(path + ".lock")
+                f"Cannot write the store {path!r}: directory {real_parent!r} is not writable "
+                "(the store needs its folder for the write-ahead log).")
+        if exists and os.path.getsize(path) > 0:
+            _check_sqlite_header(path)
+        lock_fd, created = _acquire_lock(path)
         conn = None
         try:
-            if exists and os.path.getsize(path) > 0:
-                _check_sqlite_header(path)
             conn = sqlite3.connect(path, isolation_level=None, timeout=10.0)
             st = cls(conn, path, lock_fd)
-            if st._has_schema():
-                st._check_code(code)
-                st._add_missing_columns()
-                conn.execute("PRAGMA journal_mode=WAL")
-                st._create_extra()
-            else:
-                conn.execute("PRAGMA journal_mode=WAL")
-                st._create(code)
-            conn.execute("PRAGMA synchronous=NORMAL")
+            with _sql_errors(path, "opening it"):
+                if st._has_schema():
+                    st._check_intact()
+                    st._check_code(code)
+                    st._add_missing_columns()
+                    conn.execute("PRAGMA journal_mode=WAL")
+                    st._create_extra()
+                else:
+                    conn.execute("PRAGMA journal_mode=WAL")
+                    st._create(code)
+                conn.execute("PRAGMA synchronous=NORMAL")
             return st
-        except sqlite3.DatabaseError as exc:
-            if conn is not None:
-                conn.close()
-            _release_lock(lock_fd)
-            raise StoreError(f"The store {path!r} is not usable: {exc}.") from exc
         except BaseException:
             if conn is not None:
                 conn.close()
             _release_lock(lock_fd)
+            if created and os.path.exists(path) and os.path.getsize(path) == 0:
+                os.unlink(path)  # leave nothing behind for a store that never started
             raise
 
     @classmethod
     def open_reader(cls, path) -> Store:
-        """Open an existing store read-only (no lock; safe while a writer runs)."""
+        """Open an existing store read-only (no lock; safe while a writer runs).
+
+        Tries ``mode=ro`` first; on read-only media or a read-only folder (where
+        the WAL index cannot be created) falls back to ``immutable=1``.
+        """
         path = os.fspath(path)
         if not os.path.isfile(path):
             raise StoreError(f"No results store at {path!r}.")
         _check_sqlite_header(path)
-        try:
-            conn = sqlite3.connect(f"file:{os.path.abspath(path)}?mode=ro", uri=True,
-                                   isolation_level=None, timeout=10.0)
-            st = cls(conn, path, None)
-            if not st._has_schema():
-                conn.close()
-                raise StoreError(f"{path!r} is an SQLite file but not an ldpcmarg results store.")
-            return st
-        except sqlite3.DatabaseError as exc:
-            raise StoreError(f"The store {path!r} is not readable: {exc}.") from exc
+        uri = "file:" + urllib.parse.quote(os.path.abspath(path))
+        last = None
+        for flags in ("mode=ro", "mode=ro&immutable=1"):
+            conn = None
+            try:
+                conn = sqlite3.connect(f"{uri}?{flags}", uri=True, isolation_level=None,
+                                       timeout=10.0)
+                st = cls(conn, path, None)
+                if not st._has_schema():
+                    conn.close()
+                    raise StoreError(
+                        f"{path!r} is an SQLite file but not an ldpcmarg results store.")
+                return st
+            except sqlite3.DatabaseError as exc:
+                if conn is not None:
+                    conn.close()
+                last = exc
+                if _code_of(exc) in (sqlite3.SQLITE_CORRUPT, sqlite3.SQLITE_NOTADB):
+                    break
+        raise _store_error(path, "reading it", last)
 
     def close(self) -> None:
         """Close the connection and release the writer lock."""
@@ -254,9 +393,32 @@ class Store:
 
     # ------------------------------------------------------------ schema
     def _has_schema(self) -> bool:
-        row = self._conn.execute(
-            "SELECT name FROM sqlite_master WHERE type='table' AND name='meta'").fetchone()
-        return row is not None
+        """True for a results store, False for an empty database; StoreError otherwise."""
+        names = {r[0] for r in self._conn.execute(
+            "SELECT name FROM sqlite_master WHERE type IN ('table', 'view', 'index', 'trigger') "
+            "AND name NOT LIKE 'sqlite_%'")}
+        if not names:
+            return False
+        tables = {r[0] for r in self._conn.execute(
+            "SELECT name FROM sqlite_master WHERE type='table'")}
+        ours = set(STORE_TABLES) <= tables
+        if ours:
+            keys = {r[0] for r in self._conn.execute("SELECT key FROM meta")}
+            ours = {"code_fingerprint", "schema_version"} <= keys
+        if not ours:
+            shown = ", ".join(sorted(tables)[:6]) or "none"
+            raise StoreError(
+                f"{self.path!r} is an SQLite database but not an ldpcmarg results store "
+                f"(its tables: {shown}); it was left unchanged. Give another --store file.")
+        return True
+
+    def _check_intact(self) -> None:
+        rows = [r[0] for r in self._conn.execute("PRAGMA quick_check(5)")]
+        if rows != ["ok"]:
+            raise StoreError(
+                f"The store {self.path!r} is damaged ({'; '.join(map(str, rows))[:160]}); it was "
+                "left unchanged. Restore it from a copy, or read what is left with "
+                "'ldpcmarg runs' and start a new --store file.")
 
     def _create(self, code) -> None:
         c = self._conn
@@ -278,7 +440,7 @@ class Store:
             c.executemany("INSERT INTO meta VALUES (?, ?)", sorted(meta.items()))
             c.execute("COMMIT")
         except BaseException:
-            c.execute("ROLLBACK")
+            _rollback(c)
             raise
 
     def _create_extra(self) -> None:
@@ -310,6 +472,7 @@ class Store:
                    for f in COUNT_FIELDS}
         return ", ".join(alias + f if f in have else missing[f] for f in COUNT_FIELDS)
 
+    @_guard_reads
     def meta(self) -> dict:
         """Store-level facts (code fingerprint, name, source, n, m, k)."""
         return dict(self._conn.execute("SELECT key, value FROM meta").fetchall())
@@ -330,19 +493,24 @@ class Store:
             )
 
     # ------------------------------------------------------------ writing
-    def _tx(self, fn):
+    def _tx(self, fn, what: str = "recording results"):
         c = self._conn
-        try:
-            c.execute("BEGIN IMMEDIATE")
-        except sqlite3.OperationalError as exc:
-            raise StoreError(f"The store {self.path!r} is busy: {exc}.") from exc
-        try:
-            out = fn(c)
-            c.execute("COMMIT")
-            return out
-        except BaseException:
-            c.execute("ROLLBACK")
-            raise
+        with _sql_errors(self.path, what):
+            try:
+                c.execute("BEGIN IMMEDIATE")
+            except sqlite3.OperationalError as exc:
+                if _code_of(exc) == sqlite3.SQLITE_BUSY:
+                    raise StoreError(f"The store {self.path!r} is busy: {exc}.") from exc
+                raise
+            try:
+                out = fn(c)
+                c.execute("COMMIT")
+                return out
+            except BaseException:
+                # SQLite rolls back by itself after e.g. SQLITE_FULL; a second ROLLBACK
+                # would fail with "no transaction is active" and hide the real cause
+                _rollback(c)
+                raise
 
     def run_for(self, settings: dict, decoders, versions: dict) -> tuple[int, bool]:
         """Find or create the run with these ``settings``.
@@ -354,23 +522,38 @@ class Store:
         text = json.dumps(settings, sort_keys=True)
         key = hashlib.sha256(text.encode()).hexdigest()[:16]
 
+        versions = {k: v for k, v in dict(versions).items() if k != "history"}
+        notice = []
+
         def work(c):
-            row = c.execute("SELECT id, decoders FROM runs WHERE key=?", (key,)).fetchone()
+            row = c.execute("SELECT id, decoders, versions FROM runs WHERE key=?",
+                            (key,)).fetchone()
             now = _now()
             if row is None:
                 cur = c.execute(
                     "INSERT INTO runs (key, settings, decoders, versions, created, updated) "
                     "VALUES (?, ?, ?, ?, ?, ?)",
-                    (key, text, json.dumps(list(decoders)), json.dumps(versions, sort_keys=True),
-                     now, now))
+                    (key, text, json.dumps(list(decoders)),
+                     json.dumps(_with_history(versions, [versions]), sort_keys=True), now, now))
                 return int(cur.lastrowid), True
             known = json.loads(row[1])
             merged = known + [d for d in decoders if d not in known]
+            history = version_history(json.loads(row[2]))
+            if history and history[-1] != versions:
+                notice.append(_version_notice(int(row[0]), self.path, history[-1], versions))
+            if versions not in history:
+                history.append(versions)
+            first = history[0]
             c.execute("UPDATE runs SET decoders=?, versions=?, updated=? WHERE id=?",
-                      (json.dumps(merged), json.dumps(versions, sort_keys=True), now, row[0]))
+                      (json.dumps(merged), json.dumps(_with_history(first, history),
+                                                      sort_keys=True), now, row[0]))
             return int(row[0]), False
 
-        return self._tx(work)
+        out = self._tx(work)
+        for line in notice:
+            _log.warning(line)
+        self.notices.extend(notice)
+        return out
 
     def point_id(self, run_id: int, point_key: int, snr: float) -> int:
         """Id of the (run, point) row, created if needed."""
@@ -441,6 +624,7 @@ class Store:
         self._tx(work)
 
     # ------------------------------------------------------------ reading
+    @_guard_reads
     def payload_chunks(self, point_id: int) -> list[tuple]:
         """Stored JSON chunks of a point: ``(decoder, chunk_index, frames, payload)`` tuples."""
         try:
@@ -451,6 +635,7 @@ class Store:
             return []
         return [(r[0], int(r[1]), int(r[2]), json.loads(r[3])) for r in rows]
 
+    @_guard_reads
     def get_payload(self, kind: str, key: str):
         """The cached JSON document under (kind, key), or None."""
         try:
@@ -460,6 +645,7 @@ class Store:
             return None
         return None if row is None else json.loads(row[0])
 
+    @_guard_reads
     def chunks(self, point_id: int) -> list[StoredChunk]:
         """All stored chunks of a point (any decoder, any size)."""
         rows = self._conn.execute(
@@ -467,6 +653,7 @@ class Store:
             "WHERE point_id=? ORDER BY chunk_index", (point_id,)).fetchall()
         return [StoredChunk(r[0], int(r[1]), tuple(r[2:])) for r in rows]
 
+    @_guard_reads
     def runs(self) -> list[dict]:
         """Every run with its settings, decoders, point count and chunk totals."""
         out = []
@@ -486,6 +673,7 @@ class Store:
             })
         return out
 
+    @_guard_reads
     def results(self, run_id: int | None = None) -> list[dict]:
         """Counted results (one dict per run, point and decoder), ordered by run, decoder, SNR.
 
@@ -506,6 +694,7 @@ class Store:
             out.append(d)
         return out
 
+    @_guard_reads
     def row_counts(self) -> dict:
         """Number of rows per table (for integrity checks)."""
         return {t: self._conn.execute(f"SELECT COUNT(*) FROM {t}").fetchone()[0]
@@ -522,22 +711,30 @@ def _check_sqlite_header(path: str) -> None:
         raise StoreError(f"{path!r} exists and is not an ldpcmarg results store (not SQLite).")
 
 
-def _acquire_lock(lock_path: str) -> int:
+def _acquire_lock(path: str) -> tuple[int, bool]:
+    """Exclusive advisory lock on the database file itself; returns (fd, created).
+
+    ``flock`` locks the open file (device and inode), so every path to the same
+    file -- hard links, symbolic links, relative or absolute spellings -- meets
+    the same lock. It is independent of SQLite's own POSIX byte-range locks.
+    """
     import fcntl
 
+    created = not os.path.exists(path)
     try:
-        fd = os.open(lock_path, os.O_RDWR | os.O_CREAT, 0o644)
+        fd = os.open(path, os.O_RDWR | os.O_CREAT | getattr(os, "O_CLOEXEC", 0), 0o644)
     except OSError as exc:
-        raise StoreError(f"Cannot create the store lock {lock_path!r}: {exc.strerror}.") from exc
+        raise StoreError(f"Cannot open the store {path!r}: {exc.strerror}.") from exc
     try:
         fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
     except OSError as exc:
         os.close(fd)
         raise StoreError(
-            f"The store {lock_path[:-5]!r} is being written by another process; "
-            "wait for it to finish or use another --store file."
+            f"The store {path!r} is being written by another process (perhaps through "
+            "another name or link of the same file); wait for it to finish or use another "
+            "--store file."
         ) from exc
-    return fd
+    return fd, created
 
 
 def _release_lock(fd: int | None) -> None:
