@@ -1,4 +1,4 @@
-"""Throughput of the message-passing kernels against a scalar C reference.
+"""Throughput of the message-passing kernels (scalar and lane) against scalar C references.
 
 Run from the repository root::
 
@@ -7,24 +7,26 @@ Run from the repository root::
 What it does
 ------------
 * Code: the shipped PEG (3,6) code ``peg-1008-3-6`` (n = 1008, 3024 edges); if
-  it cannot be loaded, a seeded random (3,6) code of the same size (said so in
-  the output).
+  it cannot be loaded, a seeded random (3,6) code of the same size (said so).
 * Frames: the all-zero codeword, BPSK over AWGN at Eb/N0 = 1.5 and 2.5 dB,
-  ``--frames`` frames per point (seeded), max 50 iterations, syndrome early stop.
-* Decoders: flooding sum-product and normalised min-sum (alpha = 0.75), with
-  float64 and float32 messages, on 1 and 2 threads, plus the layered variants.
-* Reference: ``experiments/c_reference/flooding.c`` -- a straightforward scalar
-  C flooding decoder (same early-stop rule, same iteration count semantics),
-  plus a tuned C variant using the numba kernel's own tricks (exp/log box-plus
-  for sum-product, branch-free min-sum), so the comparison is like for like;
-  compiled here with ``gcc -O3 -march=native`` and called through ctypes on the
-  very same LLR arrays. "2 threads" for C = two Python threads each decoding
-  half of the frames (ctypes releases the GIL).
-* Figures: frames/s, edge-updates/s (edges x iterations actually performed /
-  wall second), edge-updates per CPU second (process CPU time, all threads --
-  the figure to compare on a shared, loaded machine), decoded information
-  Mbit/s (k bits per frame), FER, mean iterations. Each figure is the best of
-  ``--repeats`` runs (the JIT is warmed up first).
+  ``--frames`` frames per point (seeded, the same LLRs for every decoder),
+  at most 50 iterations, syndrome early stop.
+* ldpcmarg: the scalar kernels (``kernel="scalar"``, one frame at a time) and
+  the frame-interleaved lane kernels of ``ldpcmarg.decoders.vectorised``
+  (``kernel="lanes"``; float32/float64 min-sum and sum-product, fixed-point
+  min-sum in the shared int8 format), 1 and 2 threads.
+* References, compiled here with ``gcc -O3 -march=native`` and called through
+  ctypes on the same LLR arrays: ``c_reference/flooding.c`` (plain scalar C)
+  and ``c_reference/flooding_tuned.c`` (branch-free signs, select-based
+  minima, exp/log box-plus). "2 threads" for C = two Python threads each
+  decoding half of the frames (ctypes releases the GIL).
+* Runs alternate: every repeat runs every implementation once, in reversed
+  order on odd repeats; each figure is the median over repeats of wall time
+  and of process CPU time (all threads). The JIT is warmed up first.
+* Figures: edge-updates/s (edges x iterations actually performed / wall
+  second), the same per CPU second, frames/s, FER, mean iterations, and the
+  ratio of each ldpcmarg row to the tuned C row of the same decoder and thread
+  count (wall time).
 """
 
 from __future__ import annotations
@@ -48,6 +50,8 @@ sys.path.insert(0, str(HERE.parent))
 
 import ldpcmarg as lm  # noqa: E402
 from ldpcmarg.code.parity_check import ParityCheckCode  # noqa: E402
+from ldpcmarg.decoders import vectorised  # noqa: E402
+from ldpcmarg.decoders.message_passing import _Threads  # noqa: E402
 from ldpcmarg.link.channels import make_channel  # noqa: E402
 
 
@@ -64,35 +68,35 @@ def get_code():
         n, m = 1008, 504
         var_of = np.repeat(np.arange(n), 3)[rng.permutation(3 * n)]
         H = np.zeros((m, n), dtype=np.uint8)
-        H[np.repeat(np.arange(m), 6), var_of] = 1          # repeated edges merge (rare)
+        H[np.repeat(np.arange(m), 6), var_of] = 1
         return ParityCheckCode(H, name="random-1008-3-6"), (
             f"RANDOM (3,6) code, seed 1008 (peg-1008-3-6 unavailable: {exc})")
 
 
-def build_c_reference():
-    src = HERE / "c_reference" / "flooding.c"
+def build_c(name: str, symbol: str, extra_double: int):
+    """Compile ``c_reference/<name>.c``; returns (ctypes function, gcc version) or (None, why)."""
     gcc = shutil.which("gcc")
     if gcc is None:
         return None, "gcc not found"
-    out = Path(tempfile.mkdtemp(prefix="ldpcmarg-cref-")) / "flooding.so"
-    cmd = [gcc, "-O3", "-march=native", "-shared", "-fPIC", "-o", str(out), str(src), "-lm"]
+    out = Path(tempfile.mkdtemp(prefix="ldpcmarg-cref-")) / f"{name}.so"
+    cmd = [gcc, "-O3", "-march=native", "-shared", "-fPIC", "-o", str(out),
+           str(HERE / "c_reference" / f"{name}.c"), "-lm"]
     subprocess.run(cmd, check=True)
-    lib = ctypes.CDLL(str(out))
-    f = lib.decode_batch
+    fn = getattr(ctypes.CDLL(str(out)), symbol)
     P = ctypes.c_void_p
-    f.argtypes = [ctypes.c_int, ctypes.c_int, ctypes.c_int, P, P, P, P, P, ctypes.c_int,
-                  ctypes.c_int, ctypes.c_double, P, P, P]
-    f.restype = ctypes.c_int
+    fn.argtypes = ([ctypes.c_int] * 3 + [P] * 5 + [ctypes.c_int, ctypes.c_int]
+                   + [ctypes.c_double] * extra_double + [P] * 3)
+    fn.restype = ctypes.c_int
     version = subprocess.run([gcc, "--version"], capture_output=True, text=True).stdout
-    version = version.split("\n")[0]
-    return f, version
+    return fn, version.split("\n")[0]
 
 
 class CDecoder:
-    """ctypes wrapper of the C reference, with the frame batch split over threads."""
+    """ctypes wrapper of a C reference, with the frame batch split over threads."""
 
-    def __init__(self, fn, code, mode, alpha, max_iter):
-        self.fn, self.code, self.mode, self.alpha, self.max_iter = fn, code, mode, alpha, max_iter
+    def __init__(self, fn, code, mode, params, max_iter):
+        self.fn, self.code, self.mode, self.params, self.max_iter = (fn, code, mode, params,
+                                                                     max_iter)
         c = code
         self.arrays = [np.ascontiguousarray(a, dtype=np.int64)
                        for a in (c.check_ptr, c.edge_var, c.var_ptr, c.var_edges)]
@@ -101,10 +105,10 @@ class CDecoder:
         c = self.code
         ptr = [a.ctypes.data for a in self.arrays]
         rc = self.fn(llr.shape[0], c.n, c.m, *ptr, llr.ctypes.data, self.max_iter, self.mode,
-                     self.alpha, post.ctypes.data, iters.ctypes.data, valid.ctypes.data)
+                     *self.params, post.ctypes.data, iters.ctypes.data, valid.ctypes.data)
         assert rc == 0
 
-    def decode(self, llr, threads=1):
+    def decode(self, llr, threads):
         F = llr.shape[0]
         post = np.empty_like(llr)
         iters = np.zeros(F, dtype=np.int64)
@@ -120,15 +124,57 @@ class CDecoder:
         return iters, valid.astype(bool)
 
 
-def measure(fn, repeats):
-    best = None
-    for _ in range(repeats):
-        c0, t0 = cpu_seconds(), time.perf_counter()
-        iters, valid = fn()
-        wall, cpu = time.perf_counter() - t0, cpu_seconds() - c0
-        if best is None or wall < best[0]:
-            best = (wall, cpu, iters, valid)
-    return best
+def implementations(code, cplain, ctuned, max_iter):
+    """(decoder label, implementation label, threads, callable(llr) -> (iters, valid))."""
+    rows = []
+
+    def numba_row(label, impl, name, th, **opts):
+        dec = lm.make_decoder(name, code, max_iter=max_iter, threads=th, **opts)
+
+        def run(llr, dec=dec):
+            r = dec.decode(llr)
+            return r.iterations, r.valid
+        rows.append((label, impl, th, run))
+
+    def fixed_row(label, impl, th, **opts):
+        def run(llr, th=th):
+            with _Threads(th):
+                _, it, ok = vectorised.decode_fixed_point_lanes(code, llr, max_iter=max_iter,
+                                                                threads=th, **opts)
+            return it, ok
+        rows.append((label, impl, th, run))
+
+    def c_row(label, impl, fn, mode, params, th):
+        dec = CDecoder(fn, code, mode, params, max_iter)
+        rows.append((label, impl, th, lambda llr, dec=dec, th=th: dec.decode(llr, th)))
+
+    for th in (1, 2):
+        sp, ms, oms = "sum-product", "min-sum a=0.75", "offset min-sum b=0.5"
+        numba_row(sp, "numba scalar f64", "sum-product", th, kernel="scalar")
+        numba_row(sp, "numba lanes f64", "sum-product", th, kernel="lanes")
+        numba_row(sp, "numba lanes f32", "sum-product", th, kernel="lanes", precision="float32")
+        numba_row(ms, "numba scalar f64", "min-sum", th, kernel="scalar", alpha=0.75)
+        numba_row(ms, "numba lanes f64", "min-sum", th, kernel="lanes", alpha=0.75)
+        numba_row(ms, "numba lanes f32", "min-sum", th, kernel="lanes", alpha=0.75,
+                  precision="float32")
+        fixed_row(ms, "numba lanes int8 q=6", th, q=6, step=0.5, rule="normalised",
+                  alpha=0.75)
+        numba_row(oms, "numba scalar f64", "offset-min-sum", th, kernel="scalar", beta=0.5)
+        numba_row(oms, "numba lanes f32", "offset-min-sum", th, kernel="lanes", beta=0.5,
+                  precision="float32")
+        fixed_row(oms, "numba lanes int8 q=6", th, q=6, step=0.5, rule="offset", beta_steps=1)
+        numba_row("layered min-sum a=0.75", "numba scalar f64", "layered-min-sum", th,
+                  kernel="scalar", alpha=0.75)
+        numba_row("layered min-sum a=0.75", "numba lanes f32", "layered-min-sum", th,
+                  kernel="lanes", alpha=0.75, precision="float32")
+        if cplain is not None:
+            c_row(sp, "C plain", cplain, 0, (1.0,), th)
+            c_row(ms, "C plain", cplain, 1, (0.75,), th)
+        if ctuned is not None:
+            c_row(sp, "C tuned", ctuned, 0, (1.0, 0.0), th)
+            c_row(ms, "C tuned", ctuned, 1, (0.75, 0.0), th)
+            c_row(oms, "C tuned", ctuned, 1, (1.0, 0.5), th)
+    return rows
 
 
 def main(argv=None):
@@ -137,80 +183,66 @@ def main(argv=None):
     ap.add_argument("--repeats", type=int, default=3)
     ap.add_argument("--max-iter", type=int, default=50)
     ap.add_argument("--out", type=Path, default=None, help="also write the table (markdown)")
-    ap.add_argument("--quick", action="store_true", help="only the flooding float64/float32 rows")
     args = ap.parse_args(argv)
 
     code, code_note = get_code()
-    cfn, cver = build_c_reference()
-    E, k = code.num_edges, code.k
+    cplain, cver = build_c("flooding", "decode_batch", 1)
+    ctuned, _ = build_c("flooding_tuned", "decode_tuned", 2)
+    E = code.num_edges
+    load0 = os.getloadavg()
     lines = [
-        f"code: {code_note}; n={code.n}, m={code.m}, k={k}, edges={E}",
-        f"frames per point: {args.frames}, max_iter {args.max_iter}, best of {args.repeats}",
-        f"C reference: {cver if cfn else 'not available: ' + cver} (-O3 -march=native)",
+        f"code: {code_note}; n={code.n}, m={code.m}, k={code.k}, edges={E}",
+        f"frames per point: {args.frames}, max_iter {args.max_iter}, median of "
+        f"{args.repeats} alternating runs; lane width {vectorised.LANES} frames",
+        f"C references: {cver if cplain else 'not available: ' + cver} "
+        "(-O3 -march=native): flooding.c (plain), flooding_tuned.c (tuned)",
         f"machine: {os.cpu_count()} logical CPUs, load average at start "
-        f"{os.getloadavg()[0]:.1f} (shared machine: wall figures are noisy; "
-        "eu/CPU-s is the fairer comparison)",
+        f"{load0[0]:.1f} / {load0[1]:.1f} (1 / 5 min). The machine was shared with other "
+        "jobs: wall figures are noisy; CPU-second figures are steadier.",
         "",
         "| Eb/N0 | decoder | impl | threads | frames/s | edge-upd/s (wall) | edge-upd/CPU-s "
-        "| info Mbit/s | FER | mean iter |",
+        "| x tuned C (wall) | FER | mean iter |",
         "|---|---|---|---|---|---|---|---|---|---|",
     ]
     print("\n".join(lines), flush=True)
-
-    configs = [("sum-product", "sum-product", {}, 0, 1.0),
-               ("min-sum a=0.75", "min-sum", {"alpha": 0.75}, 1, 0.75)]
-    layered = [("layered SP", "layered-sum-product", {}),
-               ("layered MS a=0.75", "layered-min-sum", {"alpha": 0.75})]
+    impls = implementations(code, cplain, ctuned, args.max_iter)
     for ebn0 in (1.5, 2.5):
         rng = np.random.default_rng(int(ebn0 * 1000))
         ch = make_channel("awgn", ebn0_db=ebn0, rate=code.rate)
-        llr = ch.sample_llr(np.zeros((args.frames, code.n), dtype=np.uint8), rng)
-        rows = []
-        for label, name, opts, cmode, alpha in configs:
-            impls = []
-            for prec in ("float64", "float32"):
-                for th in (1, 2):
-                    dec = lm.make_decoder(name, code, max_iter=args.max_iter, threads=th,
-                                          precision=prec, **opts)
-                    impls.append((f"numba {prec}", th, dec))
-            if cfn is not None:
-                cdec = CDecoder(cfn, code, cmode, alpha, args.max_iter)
-                impls += [("C scalar", 1, cdec), ("C scalar", 2, cdec)]
-                tuned = {0: (3, "C exp/log"), 1: (2, "C branch-free")}[cmode]
-                cdec2 = CDecoder(cfn, code, tuned[0], alpha, args.max_iter)
-                impls += [(tuned[1], 1, cdec2)]
-            for impl, th, dec in impls:
-                if impl.startswith("C"):
-                    dec.decode(llr[:4], threads=th)
-
-                    def fn(dec=dec, th=th, llr=llr):
-                        return dec.decode(llr, threads=th)
-                else:
-                    dec.decode(llr[:4])          # JIT warm-up
-
-                    def fn(dec=dec, llr=llr):
-                        r = dec.decode(llr)
-                        return r.iterations, r.valid
-                rows.append((label, impl, th) + measure(fn, args.repeats))
-        if not args.quick:
-            for label, name, opts in layered:
-                for th in (1, 2):
-                    dec = lm.make_decoder(name, code, max_iter=args.max_iter, threads=th, **opts)
-                    dec.decode(llr[:4])
-
-                    def fn(dec=dec, llr=llr):
-                        r = dec.decode(llr)
-                        return r.iterations, r.valid
-                    rows.append((label, "numba float64", th) + measure(fn, args.repeats))
-        for label, impl, th, wall, cpu, iters, valid in rows:
+        llr = np.ascontiguousarray(
+            ch.sample_llr(np.zeros((args.frames, code.n), dtype=np.uint8), rng))
+        for _, _, _, run in impls:                       # warm-up (JIT, caches)
+            run(llr[:70])
+        walls = [[] for _ in impls]
+        cpus = [[] for _ in impls]
+        results = [None] * len(impls)
+        for rep in range(args.repeats):
+            order = range(len(impls)) if rep % 2 == 0 else reversed(range(len(impls)))
+            for j in order:
+                c0, t0 = cpu_seconds(), time.perf_counter()
+                results[j] = impls[j][3](llr)
+                walls[j].append(time.perf_counter() - t0)
+                cpus[j].append(cpu_seconds() - c0)
+        tuned_wall = {}
+        for j, (label, impl, th, _) in enumerate(impls):
+            if impl == "C tuned":
+                iters = results[j][0]
+                tuned_wall[(label, th)] = E * int(iters.sum()) / float(np.median(walls[j]))
+        for j, (label, impl, th, _) in enumerate(impls):
+            iters, valid = results[j]
             tot = int(iters.sum())
-            F = iters.shape[0]
-            line = (f"| {ebn0:g} dB | {label} | {impl} | {th} | {F / wall:,.0f} | "
-                    f"{E * tot / wall:.3g} | {E * tot / max(cpu, 1e-9):.3g} | "
-                    f"{F * k / wall / 1e6:.2f} | {1 - valid.mean():.4f} | {iters.mean():.2f} |")
+            wall, cpu = float(np.median(walls[j])), float(np.median(cpus[j]))
+            rate = E * tot / wall
+            base = tuned_wall.get((label.replace("layered ", ""), th))
+            ratio = f"{rate / base:.2f}" if base and "layered" not in label else "-"
+            line = (f"| {ebn0:g} dB | {label} | {impl} | {th} | {len(iters) / wall:,.0f} | "
+                    f"{rate:.3g} | {E * tot / max(cpu, 1e-9):.3g} | {ratio} | "
+                    f"{1 - valid.mean():.4f} | {iters.mean():.2f} |")
             lines.append(line)
             print(line, flush=True)
-    lines.append(f"load average at end {os.getloadavg()[0]:.1f}")
+    load1 = os.getloadavg()
+    lines.append("")
+    lines.append(f"load average at end {load1[0]:.1f} / {load1[1]:.1f} (1 / 5 min)")
     print(lines[-1])
     if args.out:
         args.out.write_text("\n".join(lines) + "\n")

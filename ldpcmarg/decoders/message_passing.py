@@ -50,9 +50,13 @@ Performance notes
 * Index arrays are passed as uint64 (no negative-index tests in the hot loops).
 * Frames are dealt to ``4 x threads`` chunks that own their buffers.
 * float32 messages (option ``precision``) gave no speed-up on the machine
-  measured; a lane-batched min-sum (W frames per SIMD lane group) was tried
-  and dropped: LLVM did not vectorise it through numba, and it was no faster.
-  Figures: ``experiments/bench_message_passing.py``.
+  measured in these scalar kernels.
+* Option ``kernel`` (``auto`` by default): batches of at least 64 undamped
+  min-sum frames go to the frame-interleaved SIMD kernels of
+  :mod:`ldpcmarg.decoders.vectorised` (identical results in float64; float32
+  differs by rounding only); ``kernel="lanes"`` also sends sum-product there
+  (exact box-plus, see that module). Figures:
+  ``experiments/bench_message_passing.py``.
 """
 
 from __future__ import annotations
@@ -564,6 +568,14 @@ def _local_beliefs_kernel(L, c2v, check_ptr, edge_var, lc_offset, lc_bit_ptr, lc
 
 
 # -------------------------------------------------------------------- options
+def _kernel_param() -> dict[str, Param]:
+    return {"kernel": Param("choice", "auto", choices=("auto", "scalar", "lanes"),
+                            doc="'lanes': frame-interleaved SIMD kernels "
+                                "(ldpcmarg.decoders.vectorised); 'scalar': one frame at a "
+                                "time; 'auto': lanes for min-sum batches of at least 64 "
+                                "undamped frames, scalar otherwise")}
+
+
 def _common_params(damping_default: float = 0.0) -> dict[str, Param]:
     return {
         "max_iter": Param("int", 50, low=1, doc="maximum number of iterations"),
@@ -621,9 +633,36 @@ class _MessagePassing(Decoder):
     def _tol(self) -> float:
         return 0.0
 
+    def _use_lanes(self, F: int, tol: float) -> bool:
+        """Whether this batch goes to the lane kernels (option ``kernel``)."""
+        kernel = self.options.get("kernel", "scalar")
+        if kernel == "scalar" or self._weighted or self.code.m == 0:
+            return False
+        fits = self.options["damping"] == 0.0 and tol == 0.0
+        if kernel == "lanes":
+            if not fits:
+                raise InputError(f"kernel='lanes' of {self.name} needs damping=0; use "
+                                 "kernel='auto' or 'scalar' for damped decoding.")
+            return True
+        from .vectorised import LANES
+
+        # sum-product lanes measured slower than the scalar kernel (bench notes)
+        return fits and self._mode == _MODE_MS and F >= LANES
+
     def _run(self, llr: np.ndarray, *, max_iter: int, early_stop: bool, tol: float):
         """Run the kernel on (F, n) float64 LLRs; returns (post, iters, valid, stopped)."""
         c = self.code
+        if self._use_lanes(llr.shape[0], tol):
+            from .vectorised import decode_float_lanes
+
+            alpha, beta = self._alpha_beta()
+            with _Threads(self.options["threads"]):
+                post, iters, valid = decode_float_lanes(
+                    c, llr, mode="min-sum" if self._mode == _MODE_MS else "sum-product",
+                    layered=self._layered, alpha=float(alpha), beta=float(beta),
+                    max_iter=int(max_iter), early_stop=bool(early_stop),
+                    precision=self.options["precision"], threads=self.options["threads"])
+            return post, iters, valid, np.zeros(llr.shape[0], dtype=np.bool_)
         dtype = np.float32 if self.options["precision"] == "float32" else np.float64
         x = np.clip(llr, -LLR_MAX, LLR_MAX).astype(dtype, copy=False)
         x = np.ascontiguousarray(x)
@@ -664,12 +703,12 @@ class SumProductDecoder(_MessagePassing):
     the graph's diameter (Pearl 1988).
 
     Options: ``max_iter`` (50), ``early_stop`` (True), ``damping`` (0),
-    ``precision`` ("float64"), ``threads`` (0 = numba default).
+    ``precision`` ("float64"), ``kernel`` ("auto"), ``threads`` (0 = numba default).
     """
 
     name = "sum-product"
     description = "Sum-product (belief propagation) in the LLR domain, flooding schedule."
-    params = _common_params()
+    params = {**_common_params(), **_kernel_param()}
 
 
 class LayeredSumProductDecoder(SumProductDecoder):
@@ -677,7 +716,7 @@ class LayeredSumProductDecoder(SumProductDecoder):
 
     name = "layered-sum-product"
     description = "Sum-product with a layered (row-serial) schedule."
-    params = _common_params()
+    params = {**_common_params(), **_kernel_param()}
     _layered = True
 
 
@@ -689,7 +728,7 @@ class MinSumDecoder(_MessagePassing):
 
     name = "min-sum"
     description = "Normalised min-sum, flooding (alpha=1 is plain min-sum)."
-    params = {**_common_params(),
+    params = {**_common_params(), **_kernel_param(),
               "alpha": Param("float", 1.0, low=0.0, high=1.0, low_open=True,
                              doc="normalisation factor multiplying the check messages")}
     _mode = _MODE_MS
@@ -706,7 +745,7 @@ class OffsetMinSumDecoder(_MessagePassing):
 
     name = "offset-min-sum"
     description = "Offset min-sum, flooding (offset beta)."
-    params = {**_common_params(),
+    params = {**_common_params(), **_kernel_param(),
               "beta": Param("float", 0.5, low=0.0,
                             doc="offset subtracted from check-message magnitudes (LLR units)")}
     _mode = _MODE_MS
