@@ -47,8 +47,9 @@ def test_projected_point_is_in_the_local_polytope():
         assert x.min() >= 0.0 and r.tau_bits[f].max() <= 1.0
 
 
-@pytest.mark.parametrize("linear", [False, True])
-def test_certified_gap_bounds_true_suboptimality(linear):
+@pytest.mark.parametrize("linear, kappa_floor", [(False, 0.0), (True, 0.0), (False, 0.1),
+                                                 (False, 0.3)])
+def test_certified_gap_bounds_true_suboptimality(linear, kappa_floor):
     # F* from a long reference fw run (relative gap 1e-11); the certificate of a
     # loosely converged warm start must never be below F(tau) - F*
     # (weak duality, Boyd & Vandenberghe 2004 §5.1.3), and -(F - gap) >= ln Z
@@ -56,7 +57,12 @@ def test_certified_gap_bounds_true_suboptimality(linear):
     code = random_regular_code(24, 3, 6, 4)
     ref = lm.make_decoder("fw", code, entropy="trw", gap_tol=1e-11, max_iter=400)
     lam = np.stack([awgn_llr(code, 0.9, 200 + s) for s in range(3)])
-    r = CertifiedTRW(code, ref.rho, tol=1e-2, polish_rounds=0, linear=linear).run(lam, gap_tol=0)
+    # kappa_floor > 0: the entropic bound with Heskes' allocation (bits borrow entropy
+    # from a check; Heskes, Neural Comput. 18(10), 2006) must stay a valid bound
+    ct = CertifiedTRW(code, ref.rho, tol=1e-2, polish_rounds=0, linear=linear,
+                      kappa_floor=kappa_floor)
+    assert (ct._bit_alpha.max() > 0) == (kappa_floor > 0)  # the allocation is in use
+    r = ct.run(lam, gap_tol=0)
     res = ref.decode(lam)
     prob = fw.FWProblem(code, ref.rho)
     for f in range(3):

@@ -53,12 +53,15 @@ the linear certificate with multipliers from the projected cavities closes a
 1e-12, while a loose tolerance (1e-5) certifies few frames: the linear bound is
 first order in the fixed-point residual, and loose posteriors can fall outside
 a check's parity polytope, where the fix-up mixes in the uniform point. The
-entropic bound levels off at a relative gap of about 2e-3: sampled-hyperforest
-weights leave bits with ``kappa_i < 0``. Heskes' allocation ``alpha_ic`` would
-make every piece convex, but the bits then keep only ``kappa_i + sum_c alpha_ic``
-of their entropy, whose sum over the bits is the expected number of trees of a
-sampled forest (a few nats at n = 504), so the bit pieces stay almost linear and
-the bound stays first order in the residual as well; not pursued.
+entropic bound with the plain split levels off at a relative gap of 2e-3
+(1.5 dB) to 1e-2 (2.5 dB): sampled-hyperforest weights leave a few bits (6 of
+504, 7 of 1008) with ``kappa_i <= 0``, whose linear pieces make > 99 % of the
+gap. With ``kappa_floor > 0`` every bit with ``kappa_i < kappa_floor`` borrows
+``alpha <= rho_c / 2`` of the entropy of one adjacent check (a partial Heskes
+allocation, one bit per check so the check piece's minimum stays closed form,
+multiplier shifted by ``-alpha L_i``); the entropic bound then closes on its own,
+10–20 % fewer sweeps than the linear one and without its star sweeps. fw uses
+``kappa_floor = 0.1``, messages to 1e-8, checks every 6 sweeps.
 
 Box-plus is evaluated exactly at every magnitude (no clamped tanh/atanh, no
 overflow): ``a ⊞ b = sign(a) sign(b) min(|a|, |b|) + log1p(exp(-|a+b|))
@@ -514,6 +517,36 @@ def _product_belief(w, bits, o, K, bp, d, tl):
 
 
 @nb.njit(**NUMBA_OPTS)
+def _split_lnz(w, bits, o, K, bp, d, kk):
+    """(ln Z_0, ln Z_1): ln sum of exp(-sum_t S_t w_t) over the patterns with S_kk = 0 / 1."""
+    best0 = -np.inf
+    best1 = -np.inf
+    for j in range(K):
+        s = 0.0
+        base = bp + j * d
+        for t in range(d):
+            if bits[base + t]:
+                s -= w[t]
+        if bits[base + kk]:
+            best1 = max(best1, s)
+        else:
+            best0 = max(best0, s)
+    t0 = 0.0
+    t1 = 0.0
+    for j in range(K):
+        s = 0.0
+        base = bp + j * d
+        for t in range(d):
+            if bits[base + t]:
+                s -= w[t]
+        if bits[base + kk]:
+            t1 += math.exp(s - best1)
+        else:
+            t0 += math.exp(s - best0)
+    return best0 + math.log(t0), best1 + math.log(t1)
+
+
+@nb.njit(**NUMBA_OPTS)
 def _covariance(tl, bits, o, K, bp, d, mt, C):
     for t in range(d):
         for u in range(d):
@@ -534,7 +567,8 @@ def _covariance(tl, bits, o, K, bp, d, mt, C):
 
 @nb.njit(**NUMBA_OPTS)
 def _project_frame(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, offset, bit_ptr, bits,
-                   rho, kappa, newton_max, tb, tl, mu, w, w0, q, mt, cvec, rhs, C, piv, out):
+                   rho, kappa, alloc_k, alloc_alpha, bit_alpha, newton_max, tb, tl, mu, w, w0, q,
+                   mt, cvec, rhs, C, piv, out):
     """Exact point of L from posteriors ``L`` (n,) and messages ``c2v`` (E,), and its certificate.
 
     Writes ``tb`` (n,), ``tl`` (K,), ``mu`` (E,) = rho_c w_c. ``out`` (5,)
@@ -673,7 +707,24 @@ def _project_frame(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, offset,
         if math.isnan(negent):
             f_checks = np.nan
         # dual check term: min over the simplex of rho (negentropy + <tau, S.w>) = -rho ln Z
-        g_checks -= rho[c] * lnz
+        kk = alloc_k[c]
+        if kk < 0:
+            g_checks -= rho[c] * lnz
+        else:
+            # allocated piece rho negent(tau_c) - alpha h(tau_c's marginal of bit i), with
+            # multiplier mu_ic - alpha L_i (the dual optimum moves by alpha h'(t_i) = -alpha L_i):
+            # min over tau_c = min over p of p A_1 + (1 - p) A_0 + (rho - alpha) h(p),
+            # A_b = -rho ln Z_b, i.e. -(rho - alpha) ln sum_b exp(-A_b / (rho - alpha))
+            al = alloc_alpha[c]
+            r = rho[c]
+            wk = w[kk]
+            w[kk] = wk - al * L[edge_var[a + kk]] / r
+            lz0, lz1 = _split_lnz(w, bits, o, K, bp, d, kk)
+            w[kk] = wk
+            x0 = r * lz0 / (r - al)
+            x1 = r * lz1 / (r - al)
+            big = max(x0, x1)
+            g_checks -= (r - al) * (big + math.log(math.exp(x0 - big) + math.exp(x1 - big)))
         for k in range(d):
             mu[a + k] = rho[c] * w[k]
     if theta > 0.0:
@@ -705,6 +756,11 @@ def _project_frame(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, offset,
         b = llr[i]
         for p in range(var_ptr[i], var_ptr[i + 1]):
             b -= mu[var_edges[p]]
+        if bit_alpha[i] > 0.0:
+            # the bit piece keeps kappa + alpha of the entropy (Heskes allocation), and
+            # its check's multiplier moved by -alpha L_i
+            k += bit_alpha[i]
+            b += bit_alpha[i] * L[i]
         if k > 0.0:
             x = -b / k
             g_bits -= k * (max(x, 0.0) + math.log1p(math.exp(-abs(x))))
@@ -772,8 +828,9 @@ def _certify_frame(lam, tb, tl, kappa, rho_loc, check_ptr, edge_check, var_ptr, 
 
 @nb.njit(parallel=True, **NUMBA_OPTS)
 def _project_certify_batch(llr, L, c2v, check_ptr, edge_var, edge_check, var_ptr, var_edges,
-                           offset, bit_ptr, bits, masks, rho, rho_loc, kappa, newton_max, linear,
-                           sweeps, active, tb, tl, mu, out, dmax, dvmax):
+                           offset, bit_ptr, bits, masks, rho, rho_loc, kappa, alloc_k, alloc_alpha,
+                           bit_alpha, newton_max, linear, sweeps, active, tb, tl, mu, out, dmax,
+                           dvmax):
     """Projection and certificates of every active frame (prange over frames).
 
     ``out`` (F, 8): F(tau), entropic dual bound G(mu), theta, mismatch, Newton
@@ -796,8 +853,8 @@ def _project_certify_batch(llr, L, c2v, check_ptr, edge_var, edge_check, var_ptr
         C = np.empty((dmax + 1, dmax + 1), dtype=np.float64)
         o5 = np.empty(5, dtype=np.float64)
         _project_frame(llr[f], L[f], c2v[f], check_ptr, edge_var, var_ptr, var_edges, offset,
-                       bit_ptr, bits, rho, kappa, newton_max, tb[f], tl[f], mu[f], w, w0, q, mt,
-                       cvec, rhs, C, piv, o5)
+                       bit_ptr, bits, rho, kappa, alloc_k, alloc_alpha, bit_alpha, newton_max,
+                       tb[f], tl[f], mu[f], w, w0, q, mt, cvec, rhs, C, piv, o5)
         for k in range(5):
             out[f, k] = o5[k]
         out[f, 5] = np.nan
@@ -936,7 +993,7 @@ class CertifiedTRW:
                  adaptive: bool = True, omega_min: float = 0.3, tol: float = 1e-4,
                  max_iter: int = 2000, polish_rounds: int = 4, linear: bool = False,
                  sweeps: int = 0, newton_max: int = 8, anderson: int = 0,
-                 check_every: int = 10):
+                 check_every: int = 10, kappa_floor: float = 0.0):
         if schedule not in SCHEDULES:
             raise InputError(f"The warm-start schedule must be one of {SCHEDULES}; got "
                              f"{schedule!r}.")
@@ -962,7 +1019,45 @@ class CertifiedTRW:
             raise InputError(f"anderson must be >= 0 and check_every >= 1; got {anderson}, "
                              f"{check_every}.")
         self._dmax = int(code.check_degrees.max()) if code.m else 0
+        self.kappa_floor = float(kappa_floor)
+        self._allocate(self.kappa_floor)
         self._dvmax = max(int(code.var_degrees.max()) if code.n else 0, 1)
+
+    def _allocate(self, floor: float) -> None:
+        """Heskes allocation for the entropic bound: bits with kappa_i < floor borrow entropy.
+
+        Bit ``i`` takes ``alpha <= rho_c / 2`` of the entropy of one adjacent check ``c``
+        (``-rho_c H(tau_c) = -alpha H(tau_i) - [(rho_c - alpha) H(tau_c) + alpha
+        H(tau_c | x_i)]``: the same F on L, the check piece stays convex since the
+        conditional entropy is concave; Heskes, Neural Comput. 18(10), 2006). Each
+        check lends to at most one bit, so its piece's minimum stays in closed form.
+        Checks with the largest ``rho_c`` are used first.
+        """
+        code = self.code
+        m, n = code.m, code.n
+        self._alloc_k = np.full(m, -1, dtype=np.int64)
+        self._alloc_alpha = np.zeros(m)
+        self._bit_alpha = np.zeros(n)
+        if floor <= 0.0:
+            return
+        check_ptr = np.asarray(self._gr.check_ptr)
+        edge_var = np.asarray(self._gr.edge_var)
+        edges_of = [[] for _ in range(n)]
+        for c in range(m):
+            for e in range(check_ptr[c], check_ptr[c + 1]):
+                edges_of[edge_var[e]].append((c, e - check_ptr[c]))
+        for i in np.argsort(self.kappa, kind="stable"):
+            need = floor - self.kappa[i]
+            if need <= 0.0:
+                break
+            free = [(self.rho[c], c, k) for c, k in edges_of[i] if self._alloc_k[c] < 0]
+            if not free:
+                continue
+            r, c, k = max(free)
+            alpha = min(need, 0.5 * r)
+            self._alloc_k[c] = k
+            self._alloc_alpha[c] = alpha
+            self._bit_alpha[i] = alpha
 
     def run(self, llr, *, gap_tol: float = 1e-4, abs_gap_tol: float = 0.0) -> CertifiedBatch:
         """Certified TRW marginals of F frames.
@@ -1028,7 +1123,8 @@ class CertifiedTRW:
             t1 = time.perf_counter()
             _project_certify_batch(lam, L, c2v, gr.check_ptr, gr.edge_var, gr.edge_check,
                                    gr.var_ptr, gr.var_edges, gr.offset, gr.bit_ptr, gr.bits,
-                                   gr.masks, self.rho, self.rho_loc, self.kappa, self.newton_max,
+                                   gr.masks, self.rho, self.rho_loc, self.kappa, self._alloc_k,
+                                   self._alloc_alpha, self._bit_alpha, self.newton_max,
                                    self.linear, self.sweeps, active, tb, tl, mu, out, self._dmax,
                                    self._dvmax)
             t2 = time.perf_counter()
