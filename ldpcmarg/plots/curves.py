@@ -13,6 +13,11 @@ Reference lines (AWGN, Eb/N0 axis):
 * optional thresholds (e.g. density-evolution BP thresholds) passed as
   ``thresholds={label: ebn0_db}``.
 
+Curves of a link other than plain BPSK carry its record (``Curve.link``):
+the title (one shared link) or the legend names modulation, fading and the
+transmitted rate, and the BI-AWGN limit gives way to the BICM limit of the
+constellation (or a note why none is drawn); see :mod:`ldpcmarg.plots.link_notes`.
+
 For BSC/BEC sweeps the x axis is the channel parameter; the reference lines
 are the uncoded error rate (``p``; for the BEC half the erasures are guessed
 wrong, ``epsilon / 2``) and the capacity limit of the rate.
@@ -29,6 +34,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import InputError
+from .link_notes import link_figure, link_from_channel, link_from_csv_row, link_from_store
 
 __all__ = ["Curve", "curves_from_sweep", "curves_from_store", "curves_from_file",
            "plot_curves", "check_figure_path", "uncoded_bpsk_ber", "FIGURE_FORMATS"]
@@ -63,6 +69,7 @@ class Curve:
     ber_ci: np.ndarray
     fer: np.ndarray
     fer_ci: np.ndarray
+    link: dict | None = None  # link record (plots.link_notes); None for plain BPSK
 
 
 def uncoded_bpsk_ber(ebn0_db) -> np.ndarray:
@@ -88,7 +95,7 @@ def _records_to_curves(records: list[dict], prefix: str = "") -> list[Curve]:
     for (label, kind, rate), rs in groups.items():
         rs = sorted(rs, key=lambda r: r["x"])
         out.append(Curve(
-            label=prefix + label, x_kind=kind, rate=float(rate),
+            label=prefix + label, x_kind=kind, rate=float(rate), link=rs[0].get("link"),
             x=np.array([r["x"] for r in rs], dtype=np.float64),
             ber=np.array([r["ber"] for r in rs], dtype=np.float64),
             ber_ci=np.array([r["ber_ci"] for r in rs], dtype=np.float64).reshape(-1, 2),
@@ -113,7 +120,7 @@ def curves_from_sweep(result, code_label: str | None = None) -> list[Curve]:
         kind, x = _x_of(p.snr_kind, p.snr, p.rate)
         recs.append({"label": f"{name}: {p.decoder}" if name else p.decoder, "x_kind": kind,
                      "rate": p.rate, "x": x, "ber": p.ber, "ber_ci": p.ber_ci, "fer": p.fer,
-                     "fer_ci": p.fer_ci})
+                     "fer_ci": p.fer_ci, "link": link_from_channel(result.channel)})
     return _records_to_curves(recs)
 
 
@@ -126,6 +133,7 @@ def curves_from_store(path, run: int | None = None, confidence: float = 0.95) ->
         meta = st.meta()
         runs = {r["run"]: r for r in st.runs()}
         rows = st.results(run)
+        links = {rid: st.get_payload("link_record", str(rid)) for rid in runs}
     if run is not None and run not in runs:
         raise InputError(f"The store {os.fspath(path)!r} has no run {run}; "
                          f"runs: {', '.join(map(str, runs)) or 'none'}.")
@@ -137,13 +145,17 @@ def curves_from_store(path, run: int | None = None, confidence: float = 0.95) ->
         if r["frames"] == 0:
             continue
         settings = runs[r["run"]]["settings"]
-        kind, x = _x_of(settings["snr_kind"], r["snr"], rate)
+        link = link_from_store(settings, links[r["run"]], n, k)
+        # Es/N0 -> Eb/N0 with the transmitted rate and bits per symbol of the link
+        conv = rate if link is None or not link.get("transmitted_rate") or \
+            not link.get("bits_per_symbol") else link["transmitted_rate"] * link["bits_per_symbol"]
+        kind, x = _x_of(settings["snr_kind"], r["snr"], conv)
         F = r["frames"]
         label = f"{meta['code_name']}: {r['decoder']}"
         if several:
             label += f" (run {r['run']})"
         recs.append({
-            "label": label, "x_kind": kind, "rate": rate, "x": x,
+            "label": label, "x_kind": kind, "rate": rate, "x": x, "link": link,
             "ber": r["info_bit_errors"] / (F * k), "fer": r["frame_errors"] / F,
             "ber_ci": stats.ber_interval(r["info_bit_errors"], r["info_bit_errors_sq"], F, k,
                                          confidence),
@@ -171,6 +183,7 @@ def curves_from_file(path) -> list[Curve]:
             code, points = doc["code"], doc["points"]
             rate = float(code.get("rate", code["k"] / code["n"]))
             name = code.get("name", "")
+            link = link_from_channel(doc.get("channel"))
             recs = []
             for p in points:
                 if not p["frames"]:
@@ -181,7 +194,7 @@ def curves_from_file(path) -> list[Curve]:
                 recs.append({"label": f"{name}: {p['decoder']}" if name else p["decoder"],
                              "x_kind": kind, "rate": rate, "x": float(x),
                              "ber": p["ber"], "ber_ci": p["ber_ci"], "fer": p["fer"],
-                             "fer_ci": p["fer_ci"]})
+                             "fer_ci": p["fer_ci"], "link": link})
         except (KeyError, TypeError, ValueError) as exc:
             raise InputError(f"{path!r} is not a simulate --json file ({exc}).") from exc
         return _records_to_curves(recs)
@@ -198,7 +211,8 @@ def curves_from_file(path) -> list[Curve]:
             recs.append({"label": f"{r['code']}: {r['decoder']}", "x_kind": kind, "rate": rate,
                          "x": x, "ber": float(r["ber"]), "fer": float(r["fer"]),
                          "ber_ci": [float(r["ber_ci_lo"]), float(r["ber_ci_hi"])],
-                         "fer_ci": [float(r["fer_ci_lo"]), float(r["fer_ci_hi"])]})
+                         "fer_ci": [float(r["fer_ci_lo"]), float(r["fer_ci_hi"])],
+                         "link": link_from_csv_row(r)})
     except (KeyError, TypeError, ValueError) as exc:
         raise InputError(f"{path!r} is not a simulate --csv file (missing or bad {exc}).") from exc
     return _records_to_curves(recs)
@@ -239,8 +253,10 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
     uncoded : bool
         Draw the uncoded reference (uncoded BPSK ``1/2 erfc(sqrt(Eb/N0))`` on AWGN).
     shannon : bool
-        Draw the Shannon limit of each distinct code rate.
+        Draw the Shannon limit of each distinct code rate (BI-AWGN), or for
+        link curves the BICM limit of the constellation at the transmitted rate.
     title : str, optional
+        Default: the shared link of the curves when they have one (else none).
     axes : sequence of matplotlib Axes, optional
         Draw into these (one per metric) instead of a new figure.
 
@@ -278,7 +294,9 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
     xs = np.concatenate([c.x for c in curves])
     xlo, xhi = float(xs.min()), float(xs.max())
     pad = 0.05 * (xhi - xlo) if xhi > xlo else 0.5
-    rates = sorted({round(c.rate, 6) for c in curves})
+    lf = link_figure(curves, shannon, kind)  # link records: labels, title, limit lines
+    rates = lf.biawgn_rates
+    thresholds = {**lf.lines, **(thresholds or {})}
     edges = [xlo - pad, xhi + pad]
     if shannon:
         edges += [v for v in (_shannon_x(kind, r) for r in rates)
@@ -290,7 +308,7 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
     if kind != "ebn0_db":
         grid = grid[(grid > 0) & (grid < 1)]
     for ax, metric in zip(axes, metrics, strict=True):
-        for i, c in enumerate(curves):
+        for i, (c, c_label) in enumerate(zip(curves, lf.labels, strict=True)):
             y = getattr(c, metric)
             ci = getattr(c, metric + "_ci")
             pos = y > 0
@@ -298,10 +316,10 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
             if pos.any():
                 yerr = np.vstack([y[pos] - ci[pos, 0], ci[pos, 1] - y[pos]])
                 ax.errorbar(c.x[pos], y[pos], yerr=np.clip(yerr, 0, None), marker="o", ms=4,
-                            capsize=3, lw=1.3, color=color, label=c.label)
+                            capsize=3, lw=1.3, color=color, label=c_label)
             if (~pos).any():  # no errors seen: show the upper confidence bound only
                 ax.plot(c.x[~pos], ci[~pos, 1], "v", color=color, ms=5,
-                        label=None if pos.any() else c.label + " (upper bound)")
+                        label=None if pos.any() else c_label + " (upper bound)")
         if uncoded:
             if kind == "ebn0_db":
                 u = uncoded_bpsk_ber(grid)
@@ -323,6 +341,8 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
         for j, (lab, tx) in enumerate((thresholds or {}).items()):
             ax.axvline(float(tx), color=f"C{(j + 5) % 10}", ls="-.", lw=1.1,
                        label=f"{lab} ({float(tx):.3g})")
+        for note in lf.notes:  # limits left out, and why
+            ax.plot([], [], " ", label=note)
         ax.set_yscale("log")
         ax.set_xlabel(_XLABEL[kind])
         ax.set_ylabel("bit error rate (information bits)" if metric == "ber"
@@ -333,6 +353,8 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
                     for c in curves if (getattr(c, metric) > 0).any()] or [1e-6])
         ax.set_ylim(max(ymin / 3, 1e-12), 1.0)
         ax.set_xlim(x_left, x_right)
+    if title is None:
+        title = lf.title
     if title:
         fig.suptitle(title)
     fig.tight_layout()
