@@ -13,6 +13,33 @@ Conventions
 * AWGN outputs are BPSK samples ``y = (1 - 2x) + noise`` with unit symbol
   energy; BSC outputs are bits 0/1; BEC outputs are 0, 1 or 2 (= erased).
 
+Received symbols of a link (``link=``, ``--modulation`` etc.)
+-------------------------------------------------------------
+With a :class:`~ldpcmarg.link.link.Link` the input holds what the receiver
+saw, in a format of this project:
+
+* ``.npz`` with the array ``y`` -- received symbols ``y = h s + w``, complex,
+  shape ``(F, S)`` or ``(S,)`` with ``S = ceil((n - p - s) / m)`` symbols per
+  frame (``p`` punctured, ``s`` shortened bits, ``m`` bits per symbol; the
+  last symbol of a frame is padded with zero bits) -- and, optionally, ``h``:
+  the channel gains of the same shape (perfect channel knowledge), required
+  when the link has fading;
+* ``.npy``: the symbols alone (no fading);
+* text/CSV or real arrays: only for real constellations (BPSK, a user PAM).
+
+Symbol ``t`` of a frame carries the bits ``t*m ... t*m + m - 1`` of the sent
+stream (first bit = most significant label bit); the sent stream is the code
+bits without the punctured and shortened ones, in code order, permuted by
+the interleaver when one is set (``stream[j] = sent[perm[j]]``). The noise
+level comes from Eb/N0 (``Es/N0 = R_t * m * Eb/N0`` with the transmitted rate
+``R_t``), Es/N0, or ``sigma`` (noise standard deviation per real dimension,
+``N0 = 2 sigma^2``), with Es = 1. The receiver demaps (exact or max-log),
+de-interleaves, re-inserts punctured (LLR 0) and shortened (``+LLR_MAX``)
+bits and quantises when the link has a quantiser; received data are not
+descrambled (the simulator's scrambler is a simulation device). The link
+settings go into ``meta["channel"]`` (the fields of ``simulate --json``) and
+``meta["link"]`` (the link's identity).
+
 Output formats (chosen from the output file's extension)
 --------------------------------------------------------
 ``.npz``
@@ -56,6 +83,8 @@ __all__ = [
     "PosteriorResult",
     "compute_posteriors",
     "read_frames",
+    "read_received",
+    "link_noise",
     "outputs_to_llr",
     "parse_channel_spec",
     "write_posteriors",
@@ -307,6 +336,134 @@ def _first_where(mask: np.ndarray) -> tuple[int, int]:
     return f, i
 
 
+def read_received(path, *, key: str | None = None) -> tuple[np.ndarray, np.ndarray | None]:
+    """Read received symbols and optional channel gains (format in the module notes).
+
+    Parameters
+    ----------
+    path : str or Path
+        ``.npz`` (``y`` and optional ``h``), ``.npy`` (symbols only) or a text
+        file (real values only).
+    key : str, optional
+        Name of the symbols array in an ``.npz`` (default ``y``, or its only array).
+
+    Returns
+    -------
+    (symbols, gains) : ndarray and ndarray or None
+        As stored; shapes are checked against the link by
+        :meth:`~ldpcmarg.link.link.Link.check_received`.
+    """
+    p = Path(path)
+    if not p.exists():
+        raise InputError(f"Input file {p} does not exist.")
+    if p.is_dir():
+        raise InputError(f"Input {p} is a directory, not a file.")
+    ext = p.suffix.lower()
+    if ext not in INPUT_FORMATS:
+        raise InputError(f"Unknown input format {ext or '(no extension)'!r} for {p}; accepted: "
+                         + ", ".join(INPUT_FORMATS) + ".")
+    if ext == ".npy":
+        try:
+            return np.load(p, allow_pickle=False), None
+        except ValueError as exc:
+            raise InputError(f"{p} is not a plain numeric .npy array ({exc}).") from exc
+    if ext != ".npz":
+        return _read_text(p), None
+    try:
+        z = np.load(p, allow_pickle=False)
+    except (ValueError, OSError) as exc:
+        raise InputError(f"{p} is not a readable .npz archive ({exc}).") from exc
+    with z:
+        names = list(z.files)
+        if key is not None:
+            if key not in names:
+                raise InputError(f"{p} has no array {key!r}; it holds: {', '.join(names)}.")
+            chosen = key
+        elif "y" in names:
+            chosen = "y"
+        elif len(names) == 1:
+            chosen = names[0]
+        else:
+            raise InputError(f"{p} holds {', '.join(names)} but no array 'y' of received "
+                             "symbols; name the symbols with --key.")
+        try:
+            y = z[chosen]
+            h = z["h"] if "h" in names and chosen != "h" else None
+        except ValueError as exc:
+            raise InputError(f"An array in {p} is not plain numeric ({exc}).") from exc
+    return y, h
+
+
+def link_noise(channel, link) -> dict:
+    """Es/N0 of received link data from a noise spec.
+
+    Parameters
+    ----------
+    channel : str, dict or AWGNChannel
+        ``"awgn:ebn0=<dB>"`` (Eb/N0 with the link's transmitted rate and bits
+        per symbol), ``"awgn:esn0=<dB>"`` or ``"awgn:sigma=<std per real
+        dimension>"``; a dict ``{"ebn0": x}`` etc.; or an AWGNChannel (its sigma).
+    link : Link
+
+    Returns
+    -------
+    dict
+        ``esn0`` (linear), ``esn0_db``, ``ebn0_db``, ``sigma`` (``sqrt(N0/2)``)
+        and ``given`` (which quantity was given).
+    """
+    if isinstance(channel, AWGNChannel):
+        given, value = "sigma", float(channel.sigma)
+    elif isinstance(channel, dict):
+        items = [(str(k).lower(), v) for k, v in channel.items() if v is not None]
+        if len(items) != 1 or items[0][0] not in ("ebn0", "esn0", "sigma"):
+            raise InputError("The noise level of link data is one of ebn0 (dB), esn0 (dB) or "
+                             f"sigma; got {channel!r}.")
+        given, value = items[0][0], float(items[0][1])
+    elif isinstance(channel, str):
+        kind, _, rest = channel.strip().partition(":")
+        k, eq, v = rest.strip().partition("=")
+        k = k.strip().lower()
+        if kind.strip().lower() != "awgn" or not eq or k not in ("ebn0", "esn0", "sigma") \
+                or "," in v:
+            raise InputError(
+                f"Link data need the AWGN noise level as awgn:ebn0=<dB>, awgn:esn0=<dB> or "
+                f"awgn:sigma=<std> (--ebn0, --esn0 or --sigma); got {channel!r}.")
+        try:
+            given, value = k, float(v)
+        except ValueError:
+            raise InputError(f"The noise level {k} must be a number; got {v.strip()!r}.") \
+                from None
+    else:
+        raise InputError("Link data need the noise level (--ebn0, --esn0 or --sigma); the BSC "
+                         "and BEC do not apply to a modulated link.")
+    if not math.isfinite(value) or (given == "sigma" and value <= 0):
+        raise InputError(f"The noise level {given} must be a finite number"
+                         + (" > 0" if given == "sigma" else "") + f"; got {value!r}.")
+    if given == "ebn0":
+        esn0 = link.esn0_linear(value)
+    elif given == "esn0":
+        esn0 = 10.0 ** (value / 10.0)
+    else:
+        esn0 = 1.0 / (2.0 * value**2)
+    esn0_db = 10.0 * math.log10(esn0)
+    return {"given": given, "esn0": esn0, "esn0_db": esn0_db,
+            "ebn0_db": value if given == "ebn0" else link.ebn0_db(esn0_db),
+            "sigma": math.sqrt(1.0 / (2.0 * esn0))}
+
+
+def _link_of(link, code):
+    from ..link.link import Link
+
+    if isinstance(link, Link):
+        if link.n != code.n:
+            raise InputError(f"The link was built for n = {link.n}, the code has n = {code.n}.")
+        return link
+    if isinstance(link, dict):
+        return Link.build(code, **link)
+    raise InputError("link= takes a Link (ldpcmarg.link.link.Link.build) or a dict of its "
+                     f"settings (modulation=..., fading=..., ...); got {type(link).__name__}.")
+
+
 def parse_channel_spec(spec: str, *, rate: float | None = None) -> Channel:
     """Build a channel from a spec string.
 
@@ -444,7 +601,8 @@ DEFAULT_DECODER = "sum-product:early_stop=false"
 
 
 def compute_posteriors(code, decoder=DEFAULT_DECODER, *, llr=None, outputs=None,
-                       channel: Channel | str | None = None) -> PosteriorResult:
+                       channel: Channel | str | None = None, link=None,
+                       gains=None) -> PosteriorResult:
     """Decode frames and return per-bit posteriors with certificates.
 
     Give either channel LLRs (``llr``) or channel outputs (``outputs``) with
@@ -463,7 +621,17 @@ def compute_posteriors(code, decoder=DEFAULT_DECODER, *, llr=None, outputs=None,
         Channel outputs (see :func:`outputs_to_llr`).
     channel : Channel or str, optional
         Needed with ``outputs``; a spec string as in :func:`parse_channel_spec`
-        (Eb/N0 uses the code's rate k/n).
+        (Eb/N0 uses the code's rate k/n). With ``link``: the noise level as in
+        :func:`link_noise` (Eb/N0 uses the transmitted rate and bits per symbol).
+    link : Link or dict, optional
+        Modulation, fading, rate matching, interleaver and quantiser of the
+        received data (a :class:`~ldpcmarg.link.link.Link` or a dict of
+        :meth:`~ldpcmarg.link.link.Link.build` keywords, e.g.
+        ``{"modulation": "qam16", "puncture": 20}``). ``outputs`` then holds
+        the received symbols (F, S), see the module notes.
+    gains : array_like of shape (F, S), complex, optional
+        Channel gains of the received symbols (perfect channel knowledge);
+        required when the link has fading.
 
     Returns
     -------
@@ -487,9 +655,33 @@ def compute_posteriors(code, decoder=DEFAULT_DECODER, *, llr=None, outputs=None,
     """
     if (llr is None) == (outputs is None):
         raise InputError("Give either channel LLRs or channel outputs (with a channel), not both.")
+    link_meta = None
+    if link is not None:
+        if outputs is None:
+            raise InputError("A link applies to received symbols: pass them as outputs= "
+                             "(with gains= under fading and the noise level as channel=).")
+        lk = _link_of(link, code)
+        noise = link_noise(channel, lk)
+        y, h = lk.check_received(outputs, gains)
+        ch_llr = lk.receive(y, h, noise["esn0"])
+        step = lk.quantizer_step(noise["esn0"])
+        record = {**lk.record(), "scrambler": False}
+        link_meta = {
+            "channel": {"kind": "awgn", "ebn0_db": noise["ebn0_db"], "esn0_db": noise["esn0_db"],
+                        "sigma": noise["sigma"], "noise_given": noise["given"], **record,
+                        "quantizer_step": step, "gains": h is not None,
+                        "symbols_per_frame": lk.symbols_per_frame},
+            "link": {**lk.to_dict(), "scrambler": False},
+        }
+        channel = None
+        input_kind = "received-symbols"
+    elif gains is not None:
+        raise InputError("Channel gains (gains=) apply only with a link (link=...).")
     if isinstance(channel, str):
         channel = parse_channel_spec(channel, rate=code.rate)
-    if outputs is not None:
+    if link_meta is not None:
+        pass
+    elif outputs is not None:
         if channel is None:
             raise InputError(
                 "Channel outputs need the channel (AWGN Eb/N0, Es/N0 or sigma; BSC p; BEC epsilon)."
@@ -538,6 +730,7 @@ def compute_posteriors(code, decoder=DEFAULT_DECODER, *, llr=None, outputs=None,
         "decoder_options": _json_options(dec.options),
         "channel": channel.to_dict() if channel is not None else None,
         "input": input_kind,
+        **(link_meta or {}),
         "frames": int(F),
         "conventions": "p1 = P(x=1|y); llr = ln P(x=0|y) - ln P(x=1|y) (positive favours 0)",
     }

@@ -1,4 +1,4 @@
-"""The link options shared by ``simulate`` and ``compare``.
+"""The link options shared by ``simulate``, ``compare`` and ``posteriors``.
 
 ``--modulation NAME[:maxlog]`` (bpsk, qpsk, 8psk, qam16, qam64, qam256 or
 @FILE), ``--fading none|rayleigh|rician:K=<linear K>[,block=<symbols>]``

@@ -702,7 +702,12 @@ class SweepResult:
                   "ber_ci_hi", "fer", "fer_ci_lo", "fer_ci_hi", "avg_iterations",
                   "undetected_errors", "codeword_bit_errors", "codeword_ber", "decoder_seconds",
                   "capped_frames", "cut_short_chunks", "stop", "ml_lower_bound_frame_errors",
-                  "ml_lower_bound_fer", "ml_lower_bound_fer_ci_lo", "ml_lower_bound_fer_ci_hi")
+                  "ml_lower_bound_fer", "ml_lower_bound_fer_ci_lo", "ml_lower_bound_fer_ci_hi",
+                  "modulation", "demapper", "fading", "puncture", "shorten", "quantize",
+                  "interleaver", "transmitted_rate")
+
+    _CSV_LINK = ("modulation", "demapper", "puncture", "shorten", "quantize", "interleaver",
+                 "transmitted_rate")
 
     def write_csv(self, path) -> None:
         with open(path, "w", encoding="utf-8", newline="") as fh:
@@ -712,6 +717,8 @@ class SweepResult:
                 d = p.to_dict()
                 row = {"code": self.code.get("name"), "n": self.code["n"], "k": self.code["k"],
                        "rate": self.code["rate"], "channel": self.channel["kind"], **d,
+                       **{f: self.channel.get(f) for f in self._CSV_LINK},
+                       "fading": self.channel.get("fading_spec"),
                        "ber_ci_lo": d["ber_ci"][0], "ber_ci_hi": d["ber_ci"][1],
                        "fer_ci_lo": d["fer_ci"][0], "fer_ci_hi": d["fer_ci"][1],
                        "ml_lower_bound_fer_ci_lo": d["ml_lower_bound_fer_ci"][0],

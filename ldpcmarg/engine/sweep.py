@@ -417,6 +417,8 @@ class Sweep:
         self.own_store = store is None
         self.store = Store.memory(self.code) if store is None else store
         self.run_id, _ = self.store.run_for(self.settings, self.specs, _versions())
+        if self.link is not None:  # the readable link record (plots, tables) beside the run
+            self.store.put_payload("link_record", str(self.run_id), self.link.record())
         self.points = []
         self.reused_chunks = 0
         for i, (s, key) in enumerate(zip(self.snr, self.keys, strict=True)):

@@ -44,11 +44,40 @@ import numpy as np
 from .._settings import LLR_MAX
 from ..errors import InputError
 from .fading import Fading, parse_fading
-from .modulation import Constellation, demap, parse_modulation, psk, square_qam_channel
+from .modulation import (
+    Constellation,
+    demap,
+    parse_modulation,
+    psk,
+    square_qam_channel,
+    square_qam_demap,
+)
 from .quantize import Quantizer, parse_quantize
 from .rate_matching import RateMatching
 
-__all__ = ["Link", "build_link"]
+__all__ = ["Link", "Transmission", "build_link"]
+
+
+@dataclass(frozen=True)
+class Transmission:
+    """What :meth:`Link.transmit` sent and what the receiver saw.
+
+    Attributes
+    ----------
+    symbols : ndarray of shape (F, S)
+        Received symbols ``y = h s + w`` (complex128; float64 for BPSK without fading).
+    gains : ndarray of shape (F, S), complex128, or None
+        Channel gains ``h`` (None without fading).
+    scrambler : ndarray of shape (F, S*m), uint8, or None
+        The scrambler word XORed onto the sent bits (None when not scrambled).
+    llr : ndarray of shape (F, n), float64
+        The link's decoder LLRs for these symbols.
+    """
+
+    symbols: np.ndarray
+    gains: np.ndarray | None
+    scrambler: np.ndarray | None
+    llr: np.ndarray
 
 
 def _ints(a: np.ndarray) -> str:
@@ -216,9 +245,7 @@ class Link:
             cw = cw[None, :]
         if cw.ndim != 2 or cw.shape[1] != self.n:
             raise InputError(f"Codewords must have shape (F, {self.n}); got {cw.shape}.")
-        esn0_lin = float(esn0) if linear else 10.0 ** (float(esn0) / 10.0)
-        if not (math.isfinite(esn0_lin) and esn0_lin > 0):
-            raise InputError(f"Es/N0 must be a positive finite value; got {esn0!r}.")
+        esn0_lin = self._esn0_lin(esn0, linear)
         rm = self.rate_matching
         F = cw.shape[0]
         m = self.bits_per_symbol
@@ -239,7 +266,7 @@ class Link:
                 [sent, np.zeros((F, pad), np.uint8)], axis=1)
         h = self.fading.gains(F, S, rng)
         n0 = 1.0 / esn0_lin
-        if self.constellation.name == "bpsk" and self.constellation.size == 2:
+        if self._is_bpsk:
             llr = self._bpsk_llr(stream, h, esn0_lin, rng)
         elif self.constellation.pam_levels is not None:
             z = rng.standard_normal((F, S, 2))
@@ -252,6 +279,19 @@ class Link:
             y = (sym if h is None else h * sym) + w
             llr = demap(self.constellation, y, 1.0 if h is None else h, n0,
                         demapper=self.demapper)
+        return self._to_decoder(llr, scr, esn0_lin)
+
+    @property
+    def _is_bpsk(self) -> bool:
+        return self.constellation.name == "bpsk" and self.constellation.size == 2
+
+    def _to_decoder(self, llr: np.ndarray, scr, esn0_lin: float) -> np.ndarray:
+        """Stream LLRs (F, S*m) -> decoder LLRs (F, n): descramble, quantise, de-interleave,
+        re-insert punctured (0) and shortened (+LLR_MAX) bits."""
+        rm = self.rate_matching
+        nt = rm.n_sent
+        F = llr.shape[0]
+        perm = self._perm()
         llr = llr[:, :nt]
         if scr is not None:
             llr *= 1.0 - 2.0 * scr[:, :nt]
@@ -265,9 +305,203 @@ class Link:
         if not rm.active:
             return np.ascontiguousarray(llr)
         out = np.zeros((F, self.n), dtype=np.float64)
-        out[:, sent_pos] = llr
+        out[:, rm.sent_positions] = llr
         out[:, rm.shortened] = LLR_MAX
         return out
+
+    # ------------------------------------------------------------------ received data
+    def transmit(self, codewords, esn0: float, rng: np.random.Generator, *,
+                 linear: bool = True, scramble: bool = False) -> Transmission:
+        """Send codewords and keep what a receiver sees: symbols, gains and the LLRs.
+
+        The draws and the arithmetic are those of :meth:`sample_llr`; with
+        ``scramble=True`` (on a link whose :attr:`scrambled` is set) the two
+        give the same LLRs bit for bit for the same ``rng`` state. Real data
+        are not scrambled (``scramble=False``, the default): the symbols then
+        carry the codeword bits themselves, as a real transmitter sends them.
+
+        Parameters
+        ----------
+        codewords : ndarray of shape (F, n), uint8
+            Codewords; shortened positions must be 0.
+        esn0 : float
+            Es/N0, linear (``linear=True``) or in dB.
+        rng : numpy.random.Generator
+        scramble : bool
+            Apply the simulator's channel-symmetrising scrambler (only when
+            :attr:`scrambled`).
+
+        Returns
+        -------
+        Transmission
+            ``symbols`` (F, S): complex128, or float64 for BPSK without
+            fading (real noise only); ``gains`` (F, S) complex128 or None;
+            ``scrambler`` (F, S*m) uint8 or None; ``llr`` (F, n) float64 --
+            exactly what :meth:`receive` returns for these symbols and gains.
+        """
+        cw = np.asarray(codewords)
+        if cw.ndim == 1:
+            cw = cw[None, :]
+        if cw.ndim != 2 or cw.shape[1] != self.n:
+            raise InputError(f"Codewords must have shape (F, {self.n}); got {cw.shape}.")
+        esn0_lin = self._esn0_lin(esn0, linear)
+        rm = self.rate_matching
+        F = cw.shape[0]
+        m = self.bits_per_symbol
+        nt = rm.n_sent
+        sent = cw[:, rm.sent_positions].astype(np.uint8, copy=False)
+        perm = self._perm()
+        if perm is not None:
+            sent = sent[:, perm]
+        S = -(-nt // m)
+        stream = np.concatenate([sent, np.zeros((F, S * m - nt), np.uint8)], axis=1)
+        scr = None
+        if scramble and self.scrambled:
+            scr = rng.integers(0, 2, size=(F, S * m), dtype=np.uint8)
+            stream = stream ^ scr
+        h = self.fading.gains(F, S, rng)
+        n0 = 1.0 / esn0_lin
+        if self._is_bpsk:
+            sigma = math.sqrt(1.0 / (2.0 * esn0_lin))
+            x = 1.0 - 2.0 * stream.astype(np.float64)
+            if h is None:
+                y = rng.standard_normal((F, S))
+                y *= sigma
+                y += x
+            else:
+                z = rng.standard_normal((F, S, 2))
+                y = h * x + (z[..., 0] + 1j * z[..., 1]) * sigma
+        elif self.constellation.pam_levels is not None:
+            # y = h x + w formed part by part in the order of the fused kernel of
+            # square_qam_channel (numpy's complex product may round differently)
+            sym = self.constellation.modulate(stream)
+            z = rng.standard_normal((F, S, 2))
+            sigma = math.sqrt(n0 / 2.0)
+            xr, xq = sym.real, sym.imag
+            if h is None:
+                yr, yi = xr + sigma * z[..., 0], xq + sigma * z[..., 1]
+            else:
+                hr, hi = h.real, h.imag
+                yr = hr * xr - hi * xq + sigma * z[..., 0]
+                yi = hr * xq + hi * xr + sigma * z[..., 1]
+            y = np.empty((F, S), dtype=np.complex128)
+            y.real = yr
+            y.imag = yi
+        else:
+            sym = self.constellation.modulate(stream)
+            z = rng.standard_normal((F, S, 2))
+            w = (z[..., 0] + 1j * z[..., 1]) * math.sqrt(n0 / 2.0)
+            y = (sym if h is None else h * sym) + w
+        llr = self._demap_received(y, h, esn0_lin)
+        return Transmission(symbols=y, gains=h, scrambler=scr,
+                            llr=self._to_decoder(llr, scr, esn0_lin))
+
+    def check_received(self, symbols, gains=None) -> tuple[np.ndarray, np.ndarray | None]:
+        """Validate received symbols (and gains) for this link; return them as (F, S) arrays.
+
+        Parameters
+        ----------
+        symbols : array_like of shape (F, S) or (S,)
+            Complex received symbols ``y = h s + w``; real values are accepted
+            when every constellation point is real (BPSK, user PAM).
+        gains : array_like of the same shape, optional
+            Channel gains ``h`` known at the receiver; required with fading.
+
+        Returns
+        -------
+        (symbols, gains) : ndarray (F, S) complex128 (float64 for real BPSK
+            data without gains) and ndarray (F, S) complex128 or None.
+
+        Raises
+        ------
+        InputError
+            Wrong number of symbols per frame, real data for a complex
+            constellation, non-numeric or non-finite values, gains missing
+            with fading or of another shape.
+        """
+        S = self.symbols_per_frame
+        y = np.asarray(symbols)
+        if y.ndim == 1:
+            y = y[None, :]
+        if y.dtype.kind not in "biufc":
+            raise InputError(f"Received symbols must be numeric; got dtype {y.dtype}.")
+        if y.ndim != 2 or y.shape[1] != S or y.shape[0] == 0:
+            raise InputError(
+                f"The received data have shape {y.shape}; this link sends S = {S} symbols "
+                f"per frame (n = {self.n}, {self.rate_matching.punctured.size} punctured, "
+                f"{self.rate_matching.shortened.size} shortened, m = {self.bits_per_symbol} "
+                f"bits per symbol), so give an array of shape (F, {S}).")
+        if y.dtype.kind != "c" and not self.constellation.is_real:
+            raise InputError(
+                f"The received symbols are real, but {self.modulation_spec} is a complex "
+                "constellation; give complex symbols (a complex .npy/.npz array).")
+        if not np.all(np.isfinite(y)):
+            f, s = (int(v[0]) for v in np.nonzero(~np.isfinite(y)))
+            raise InputError(f"The received symbols contain NaN or infinite values (frame {f}, "
+                             f"symbol {s}).")
+        h = None
+        if gains is not None:
+            h = np.asarray(gains)
+            if h.ndim == 1:
+                h = h[None, :]
+            if h.dtype.kind not in "biufc":
+                raise InputError(f"Channel gains must be numeric; got dtype {h.dtype}.")
+            if h.shape != y.shape:
+                raise InputError(f"The channel gains have shape {h.shape}, the received symbols "
+                                 f"{y.shape}; give one gain per symbol.")
+            if not np.all(np.isfinite(h)):
+                raise InputError("The channel gains contain NaN or infinite values.")
+            h = np.ascontiguousarray(h, dtype=np.complex128)
+        elif self.fading.active:
+            raise InputError(
+                f"With --fading {self.fading.label()} the receiver needs the channel gains: "
+                f"store them as the array 'h' of shape (F, {S}) beside the symbols 'y' in the "
+                ".npz input (perfect channel knowledge).")
+        if self._is_bpsk and h is None and y.dtype.kind != "c":
+            return np.ascontiguousarray(y, dtype=np.float64), None
+        return np.ascontiguousarray(y, dtype=np.complex128), h
+
+    def receive(self, symbols, gains=None, esn0: float = 1.0, *,
+                linear: bool = True) -> np.ndarray:
+        """Decoder LLRs for received symbols: demap, de-interleave, re-insert, quantise.
+
+        Parameters
+        ----------
+        symbols : array_like of shape (F, S) or (S,)
+            Received symbols, ``S = symbols_per_frame``; see :meth:`check_received`.
+        gains : array_like of shape (F, S), optional
+            Channel gains (perfect channel knowledge); required with fading.
+        esn0 : float
+            Es/N0, linear (``linear=True``) or in dB; Es = 1, N0 = 1/(Es/N0).
+
+        Returns
+        -------
+        ndarray of shape (F, n), float64
+            Punctured bits 0, shortened ``+LLR_MAX``; no descrambling (received
+            data are assumed to carry the codeword bits).
+        """
+        y, h = self.check_received(symbols, gains)
+        esn0_lin = self._esn0_lin(esn0, linear)
+        return self._to_decoder(self._demap_received(y, h, esn0_lin), None, esn0_lin)
+
+    def _esn0_lin(self, esn0, linear) -> float:
+        esn0_lin = float(esn0) if linear else 10.0 ** (float(esn0) / 10.0)
+        if not (math.isfinite(esn0_lin) and esn0_lin > 0):
+            raise InputError(f"Es/N0 must be a positive finite value; got {esn0!r}.")
+        return esn0_lin
+
+    def _demap_received(self, y, h, esn0_lin) -> np.ndarray:
+        """Stream LLRs (F, S*m) of validated symbols; the arithmetic of :meth:`sample_llr`."""
+        n0 = 1.0 / esn0_lin
+        if self._is_bpsk:
+            sigma = math.sqrt(1.0 / (2.0 * esn0_lin))
+            if h is None:
+                return np.ascontiguousarray(np.real(y), dtype=np.float64) * (2.0 / sigma**2)
+            y = np.asarray(y, dtype=np.complex128)
+            return (2.0 / sigma**2) * (h.real * y.real + h.imag * y.imag)
+        if self.constellation.pam_levels is not None:
+            return square_qam_demap(self.constellation, y, h, n0, demapper=self.demapper)
+        return demap(self.constellation, y, 1.0 if h is None else h, n0, demapper=self.demapper)
 
     def _bpsk_llr(self, stream, h, esn0_lin, rng):
         """BPSK closed form: real noise and ``2 y / sigma^2`` (complex with fading)."""

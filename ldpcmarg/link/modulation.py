@@ -73,6 +73,7 @@ __all__ = [
     "square_qam",
     "demap",
     "square_qam_channel",
+    "square_qam_demap",
     "BUILTIN_CONSTELLATIONS",
     "DEMAPPERS",
 ]
@@ -395,6 +396,66 @@ def _demap_kernel(y, h, points, bit_table, inv_n0, maxlog, out):
 
 
 @nb.njit(**NUMBA_OPTS)
+def _pam_llrs(yd, a, levels, pam_bits, inv_n0, maxlog, metric, expo, out, f, off):
+    """Exact (or max-log) LLRs of the ``m/2`` label bits of one PAM dimension.
+
+    ``yd`` is the derotated received value of this dimension and ``a = |h|``;
+    writes ``out[f, off + j]`` for ``j < m/2``. Shared by the fused channel
+    kernel and the receiver-side kernel so both give the same numbers.
+    """
+    L = levels.shape[0]
+    half = pam_bits.shape[1]
+    best = -np.inf
+    for k in range(L):
+        e = yd - a * levels[k]
+        v = -e * e * inv_n0
+        metric[k] = v
+        if v > best:
+            best = v
+    if not maxlog:
+        for k in range(L):
+            expo[k] = math.exp(metric[k] - best)
+    for j in range(half):
+        mx0 = -np.inf
+        mx1 = -np.inf
+        s0 = 0.0
+        s1 = 0.0
+        for k in range(L):
+            v = metric[k]
+            if pam_bits[k, j] == 0:
+                mx0 = max(mx0, v)
+                s0 += expo[k] if not maxlog else 0.0
+            else:
+                mx1 = max(mx1, v)
+                s1 += expo[k] if not maxlog else 0.0
+        if maxlog:
+            llr = mx0 - mx1
+        else:
+            if s0 < _UNDERFLOW:
+                s0 = 0.0
+                for k in range(L):
+                    if pam_bits[k, j] == 0:
+                        s0 += math.exp(metric[k] - mx0)
+                l0 = mx0 + math.log(s0)
+            else:
+                l0 = best + math.log(s0)
+            if s1 < _UNDERFLOW:
+                s1 = 0.0
+                for k in range(L):
+                    if pam_bits[k, j] != 0:
+                        s1 += math.exp(metric[k] - mx1)
+                l1 = mx1 + math.log(s1)
+            else:
+                l1 = best + math.log(s1)
+            llr = l0 - l1
+        if llr > LLR_MAX:
+            llr = LLR_MAX
+        elif llr < -LLR_MAX:
+            llr = -LLR_MAX
+        out[f, off + j] = llr
+
+
+@nb.njit(**NUMBA_OPTS)
 def _square_qam_kernel(stream, z, h, faded, sigma, inv_n0, levels, level_of_label, pam_bits,
                        maxlog, out):
     """Square Gray QAM: map bits, add fading and noise, demap exactly -- in one pass.
@@ -406,6 +467,9 @@ def _square_qam_kernel(stream, z, h, faded, sigma, inv_n0, levels, level_of_labe
     The LLR of a bit of one quadrature is exact with the other quadrature
     summed out: after derotation by ``conj(h)/|h|`` the noise stays circular,
     so the two dimensions separate and the other dimension's sum cancels.
+    The received value ``h x + w`` is formed exactly as numpy's complex
+    arithmetic forms it, so :func:`_square_qam_rx_kernel` applied to the
+    symbols of :meth:`Link.transmit` gives these LLRs bit for bit.
     """
     F = stream.shape[0]
     S = z.shape[1]
@@ -443,56 +507,56 @@ def _square_qam_kernel(stream, z, h, faded, sigma, inv_n0, levels, level_of_labe
                 a = 1.0
                 dr = xr + wr
                 di = xq + wi
-            for dim in range(2):
-                yd = dr if dim == 0 else di
-                best = -np.inf
-                for k in range(L):
-                    e = yd - a * levels[k]
-                    v = -e * e * inv_n0
-                    metric[k] = v
-                    if v > best:
-                        best = v
-                if not maxlog:
-                    for k in range(L):
-                        expo[k] = math.exp(metric[k] - best)
-                for j in range(half):
-                    mx0 = -np.inf
-                    mx1 = -np.inf
-                    s0 = 0.0
-                    s1 = 0.0
-                    for k in range(L):
-                        v = metric[k]
-                        if pam_bits[k, j] == 0:
-                            mx0 = max(mx0, v)
-                            s0 += expo[k] if not maxlog else 0.0
-                        else:
-                            mx1 = max(mx1, v)
-                            s1 += expo[k] if not maxlog else 0.0
-                    if maxlog:
-                        llr = mx0 - mx1
-                    else:
-                        if s0 < _UNDERFLOW:
-                            s0 = 0.0
-                            for k in range(L):
-                                if pam_bits[k, j] == 0:
-                                    s0 += math.exp(metric[k] - mx0)
-                            l0 = mx0 + math.log(s0)
-                        else:
-                            l0 = best + math.log(s0)
-                        if s1 < _UNDERFLOW:
-                            s1 = 0.0
-                            for k in range(L):
-                                if pam_bits[k, j] != 0:
-                                    s1 += math.exp(metric[k] - mx1)
-                            l1 = mx1 + math.log(s1)
-                        else:
-                            l1 = best + math.log(s1)
-                        llr = l0 - l1
-                    if llr > LLR_MAX:
-                        llr = LLR_MAX
-                    elif llr < -LLR_MAX:
-                        llr = -LLR_MAX
-                    out[f, base + dim * half + j] = llr
+            _pam_llrs(dr, a, levels, pam_bits, inv_n0, maxlog, metric, expo, out, f, base)
+            _pam_llrs(di, a, levels, pam_bits, inv_n0, maxlog, metric, expo, out, f,
+                      base + half)
+
+
+@nb.njit(**NUMBA_OPTS)
+def _square_qam_rx_kernel(y, h, faded, inv_n0, levels, pam_bits, maxlog, out):
+    """Square Gray QAM receiver: received symbols y (F, S) and gains h -> bit LLRs.
+
+    The demapping half of :func:`_square_qam_kernel` (same derotation, same
+    per-dimension sums). Assumes validated, contiguous inputs.
+    """
+    F, S = y.shape
+    L = levels.shape[0]
+    half = pam_bits.shape[1]
+    m = 2 * half
+    metric = np.empty(L, dtype=np.float64)
+    expo = np.empty(L, dtype=np.float64)
+    for f in range(F):
+        for s in range(S):
+            base = s * m
+            yr = y[f, s].real
+            yi = y[f, s].imag
+            if faded:
+                hr = h[f, s].real
+                hi = h[f, s].imag
+                a = math.sqrt(hr * hr + hi * hi)
+                if a == 0.0:
+                    for j in range(m):
+                        out[f, base + j] = 0.0
+                    continue
+                dr = (hr * yr + hi * yi) / a
+                di = (hr * yi - hi * yr) / a
+            else:
+                a = 1.0
+                dr = yr
+                di = yi
+            _pam_llrs(dr, a, levels, pam_bits, inv_n0, maxlog, metric, expo, out, f, base)
+            _pam_llrs(di, a, levels, pam_bits, inv_n0, maxlog, metric, expo, out, f,
+                      base + half)
+
+
+def _pam_tables(constellation: Constellation):
+    L = constellation.pam_levels.shape[0]
+    level_of_label = np.empty(L, dtype=np.int64)
+    level_of_label[constellation.pam_labels] = np.arange(L)
+    half = int(round(math.log2(L)))
+    pam_bits = ((constellation.pam_labels[:, None] >> (half - 1 - np.arange(half))[None, :])
+                & 1).astype(np.uint8)
+    return level_of_label, np.ascontiguousarray(pam_bits), half
 
 
 def square_qam_channel(constellation: Constellation, stream: np.ndarray, h, z: np.ndarray,
@@ -518,12 +582,7 @@ def square_qam_channel(constellation: Constellation, stream: np.ndarray, h, z: n
     lev = constellation.pam_levels
     if lev is None:
         raise InputError(f"{constellation.name} is not a square QAM.")
-    L = lev.shape[0]
-    level_of_label = np.empty(L, dtype=np.int64)
-    level_of_label[constellation.pam_labels] = np.arange(L)
-    half = int(round(math.log2(L)))
-    pam_bits = ((constellation.pam_labels[:, None] >> (half - 1 - np.arange(half))[None, :])
-                & 1).astype(np.uint8)
+    level_of_label, pam_bits, half = _pam_tables(constellation)
     F = stream.shape[0]
     S = z.shape[1]
     faded = h is not None
@@ -533,7 +592,43 @@ def square_qam_channel(constellation: Constellation, stream: np.ndarray, h, z: n
     _square_qam_kernel(np.ascontiguousarray(stream, dtype=np.uint8),
                        np.ascontiguousarray(z, dtype=np.float64), hh, faded,
                        math.sqrt(n0 / 2.0), 1.0 / n0, np.ascontiguousarray(lev),
-                       level_of_label, np.ascontiguousarray(pam_bits), demapper == "maxlog", out)
+                       level_of_label, pam_bits, demapper == "maxlog", out)
+    return out
+
+
+def square_qam_demap(constellation: Constellation, y, h, n0: float, *,
+                     demapper: str = "exact") -> np.ndarray:
+    """Bit LLRs of received square-QAM symbols, one real dimension at a time.
+
+    The same LLRs as :func:`demap` (up to rounding) and, for the symbols of
+    :meth:`ldpcmarg.link.link.Link.transmit`, bit for bit those of
+    :func:`square_qam_channel`.
+
+    Parameters
+    ----------
+    constellation : Constellation
+        A square QAM from :func:`square_qam`.
+    y : ndarray of shape (F, S), complex128
+        Received symbols ``h s + w``.
+    h : ndarray of shape (F, S), complex128, or None (no fading, h = 1)
+    n0 : float
+        Complex noise variance N0 = 1/(Es/N0).
+
+    Returns
+    -------
+    ndarray of shape (F, S*m), float64
+    """
+    if constellation.pam_levels is None:
+        raise InputError(f"{constellation.name} is not a square QAM.")
+    _, pam_bits, half = _pam_tables(constellation)
+    yy = np.ascontiguousarray(np.atleast_2d(y), dtype=np.complex128)
+    faded = h is not None
+    hh = np.ascontiguousarray(h, dtype=np.complex128) if faded else \
+        np.zeros((1, 1), dtype=np.complex128)
+    out = np.empty((yy.shape[0], yy.shape[1] * 2 * half), dtype=np.float64)
+    _square_qam_rx_kernel(yy, hh, faded, 1.0 / n0,
+                          np.ascontiguousarray(constellation.pam_levels), pam_bits,
+                          demapper == "maxlog", out)
     return out
 
 

@@ -13,6 +13,11 @@ Reference lines (AWGN, Eb/N0 axis):
 * optional thresholds (e.g. density-evolution BP thresholds) passed as
   ``thresholds={label: ebn0_db}``.
 
+Curves of a link other than plain BPSK carry its record (``Curve.link``):
+the title (one shared link) or the legend names modulation, fading and the
+transmitted rate, and the BI-AWGN limit gives way to the BICM limit of the
+constellation (or a note why none is drawn); see :mod:`ldpcmarg.plots.link_notes`.
+
 For BSC/BEC sweeps the x axis is the channel parameter; the reference lines
 are the uncoded error rate (``p``; for the BEC half the erasures are guessed
 wrong, ``epsilon / 2``) and the capacity limit of the rate.
@@ -40,6 +45,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import InputError
+from .link_notes import link_figure, link_from_channel, link_from_csv_row, link_from_store
 from .style import (
     LINESTYLES,
     decoder_style,
@@ -105,6 +111,7 @@ class Curve:
     confidence: float = 0.95
     ml_lb: np.ndarray | None = None
     ml_lb_ci: np.ndarray | None = None
+    link: dict | None = None  # link record (plots.link_notes); None for plain BPSK
 
     def __post_init__(self):
         if not self.decoder:
@@ -138,7 +145,7 @@ def _records_to_curves(records: list[dict], prefix: str = "") -> list[Curve]:
         rs = sorted(rs, key=lambda r: r["x"])
         meta = {m: rs[0][m] for m in _META if rs[0].get(m) is not None}
         out.append(Curve(
-            label=prefix + label, x_kind=kind, rate=float(rate), **meta,
+            label=prefix + label, x_kind=kind, rate=float(rate), link=rs[0].get("link"), **meta,
             x=np.array([r["x"] for r in rs], dtype=np.float64),
             ber=np.array([r["ber"] for r in rs], dtype=np.float64),
             ber_ci=np.array([r["ber_ci"] for r in rs], dtype=np.float64).reshape(-1, 2),
@@ -177,7 +184,8 @@ def curves_from_sweep(result, code_label: str | None = None) -> list[Curve]:
                      "fer_ci": p.fer_ci, "decoder": p.decoder,
                      "code": result.code.get("name", ""), "n": p.n, "k": p.k,
                      "confidence": p.confidence,
-                     "ml_lb": p.ml_lower_bound_fer, "ml_lb_ci": p.ml_lower_bound_fer_ci})
+                     "ml_lb": p.ml_lower_bound_fer, "ml_lb_ci": p.ml_lower_bound_fer_ci,
+                     "link": link_from_channel(result.channel)})
     return _records_to_curves(recs)
 
 
@@ -190,6 +198,7 @@ def curves_from_store(path, run: int | None = None, confidence: float = 0.95) ->
         meta = st.meta()
         runs = {r["run"]: r for r in st.runs()}
         rows = st.results(run)
+        links = {rid: st.get_payload("link_record", str(rid)) for rid in runs}
     if run is not None and run not in runs:
         raise InputError(f"The store {os.fspath(path)!r} has no run {run}; "
                          f"runs: {', '.join(map(str, runs)) or 'none'}.")
@@ -201,13 +210,18 @@ def curves_from_store(path, run: int | None = None, confidence: float = 0.95) ->
         if r["frames"] == 0:
             continue
         settings = runs[r["run"]]["settings"]
-        kind, x = _x_of(settings["snr_kind"], r["snr"], rate)
+        link = link_from_store(settings, links[r["run"]], n, k)
+        # Es/N0 -> Eb/N0 with the transmitted rate and bits per symbol of the link
+        conv = rate if link is None or not link.get("transmitted_rate") or \
+            not link.get("bits_per_symbol") else link["transmitted_rate"] * link["bits_per_symbol"]
+        kind, x = _x_of(settings["snr_kind"], r["snr"], conv)
         F = r["frames"]
         label = f"{meta['code_name']}: {r['decoder']}"
         if several:
             label += f" (run {r['run']})"
         recs.append({
-            "label": label, "x_kind": kind, "rate": rate, "x": x, "decoder": r["decoder"],
+            "label": label, "x_kind": kind, "rate": rate, "x": x, "link": link,
+            "decoder": r["decoder"],
             "code": meta["code_name"], "n": n, "k": k, "confidence": confidence,
             "series": f"run {r['run']}" if several else "",
             "ber": r["info_bit_errors"] / (F * k), "fer": r["frame_errors"] / F,
@@ -248,6 +262,7 @@ def curves_from_file(path) -> list[Curve]:
             code, points = doc["code"], doc["points"]
             rate = float(code.get("rate", code["k"] / code["n"]))
             name = code.get("name", "")
+            link = link_from_channel(doc.get("channel"))
             recs = []
             for p in points:
                 if not p["frames"]:
@@ -262,7 +277,7 @@ def curves_from_file(path) -> list[Curve]:
                              "n": code.get("n"), "k": code.get("k"),
                              "confidence": p.get("confidence", 0.95),
                              "ml_lb": p.get("ml_lower_bound_fer"),
-                             "ml_lb_ci": p.get("ml_lower_bound_fer_ci")})
+                             "ml_lb_ci": p.get("ml_lower_bound_fer_ci"), "link": link})
         except (KeyError, TypeError, ValueError) as exc:
             raise InputError(f"{path!r} is not a simulate --json file ({exc}).") from exc
         return _records_to_curves(recs)
@@ -287,7 +302,8 @@ def curves_from_file(path) -> list[Curve]:
                          if r.get("ml_lower_bound_fer") else None,
                          "ml_lb_ci": [float(r["ml_lower_bound_fer_ci_lo"]),
                                       float(r["ml_lower_bound_fer_ci_hi"])]
-                         if r.get("ml_lower_bound_fer_ci_lo") else None})
+                         if r.get("ml_lower_bound_fer_ci_lo") else None,
+                         "link": link_from_csv_row(r)})
     except (KeyError, TypeError, ValueError) as exc:
         raise InputError(f"{path!r} is not a simulate --csv file (missing or bad {exc}).") from exc
     return _records_to_curves(recs)
@@ -336,8 +352,14 @@ def _axis_kind(kind: str, x_axis: str) -> str:
 
 
 def _axis_x(c: Curve, axis_kind: str) -> np.ndarray:
-    # Es/N0 = R Eb/N0, i.e. Es/N0 (dB) = Eb/N0 (dB) + 10 log10 R
-    return c.x + 10.0 * math.log10(c.rate) if axis_kind == "esn0_db" else c.x
+    # Es/N0 = R m Eb/N0 with R the transmitted rate and m bits per symbol (BPSK: the
+    # code rate and m = 1), i.e. Es/N0 (dB) = Eb/N0 (dB) + 10 log10(R m)
+    if axis_kind != "esn0_db":
+        return c.x
+    rec = c.link or {}
+    rate = float(rec.get("transmitted_rate") or c.rate)
+    m = int(rec.get("bits_per_symbol") or 1)
+    return c.x + 10.0 * math.log10(rate * m)
 
 
 def _uncoded_ber(grid: np.ndarray, kind: str) -> tuple[np.ndarray, str]:
@@ -388,10 +410,11 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
         Draw the uncoded reference on both panels (BER: uncoded BPSK
         ``1/2 erfc(sqrt(Eb/N0))`` on AWGN; FER: a frame of k uncoded bits).
     shannon : bool
-        Draw the Shannon limit of each distinct code rate.
+        Draw the Shannon limit of each distinct code rate (BI-AWGN), or for
+        link curves the BICM limit of the constellation at the transmitted rate.
     title : str, optional
-        Default :func:`curves_title` (code, n, k, channel, iteration cap); ``""``
-        for none.
+        Default :func:`curves_title` (code, n, k, channel, iteration cap, and
+        the shared link when the curves have one); ``""`` for none.
     axes : sequence of matplotlib Axes, optional
         Draw into these (one per metric) instead of a new figure; each then gets
         its own legend.
@@ -445,7 +468,9 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
     xs = np.concatenate(xcurves)
     xlo, xhi = float(xs.min()), float(xs.max())
     pad = 0.05 * (xhi - xlo) if xhi > xlo else 0.5
-    rates = sorted({round(c.rate, 6) for c in curves})
+    lf = link_figure(curves, shannon, kind)  # link records: labels, title, limit lines
+    rates = lf.biawgn_rates                  # curves without a link: BI-AWGN limit
+    thresholds = {**lf.lines, **(thresholds or {})}
     shannon_x = {}
     if shannon:
         for r in rates:
@@ -466,13 +491,15 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
     any_zero = False
     curve_labels = set()
     for ax, metric in zip(axes, metrics, strict=True):
-        for c, x in zip(curves, xcurves, strict=True):
+        for c, x, c_label in zip(curves, xcurves, lf.labels, strict=True):
             y = getattr(c, metric)
             ci = getattr(c, metric + "_ci")
             pos = y > 0
             st = styles[c.decoder]
             ls = series[(c.code, c.series)]
             label = c.decoder + (f" ({c.series})" if c.series else "") if one_code else c.label
+            if c_label != c.label:  # curves of different links: the link is in the label
+                label = c_label
             curve_labels.add(label)
             if pos.any():
                 yerr = np.vstack([y[pos] - ci[pos, 0], ci[pos, 1] - y[pos]])
@@ -503,6 +530,8 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
         for j, (lab, tx) in enumerate((thresholds or {}).items()):
             ax.axvline(float(tx), color="0.15", ls=("-.", (0, (3, 1, 1, 1, 1, 1)))[j % 2],
                        lw=1.1, label=reference_label(lab, float(tx), kind))
+        for note in lf.notes:  # limits left out, and why
+            ax.plot([], [], " ", label=note)
         ax.set_yscale("log")
         ax.set_xlabel(_XLABEL[kind])
         ax.set_ylabel("bit error rate (information bits)" if metric == "ber"
@@ -542,6 +571,8 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
             ax.legend(h + extra, lab + [e.get_label() for e in extra], fontsize=7, loc="best")
     if title is None:
         title = curves_title(curves, x_axis)
+        if lf.title:
+            title += "\n" + lf.title
     if title:
         fig.suptitle(title, fontsize=10)
     if path is not None:
