@@ -393,8 +393,9 @@ def untrustworthy_handle(series):
     conf = series[0].confidence if series else 0.95
     marker = Line2D([], [], ls="none", marker="o", mfc="white", color="0.3", ms=6, mew=1.3)
     caret = Line2D([], [], ls="none", marker=7, color="0.3", ms=5)
-    text = (f"hollow marker with caret: importance sampling not trustworthy ({need}); only "
-            f"the upper bound is drawn ({100 * conf:g} %)")
+    # two lines: one would be wider than a single-panel figure
+    text = (f"hollow marker with caret: importance sampling not trustworthy\n"
+            f"({need}); only the upper bound ({100 * conf:g} %) is drawn")
     return (marker, caret), text
 
 
