@@ -1,4 +1,4 @@
-"""``ldpcmarg plot``: BER/FER figure from results stores, JSON or CSV files."""
+"""``ldpcmarg plot``: BER/FER figure from results stores, JSON or CSV files, and floor JSON."""
 
 from __future__ import annotations
 
@@ -45,13 +45,17 @@ def _thresholds(values) -> dict:
 @click.option("--limits", "with_limits", is_flag=True,
               help="FER panel: add the finite-length limits for each code's n and k "
                    "(sphere packing 1959 on AWGN, normal approximation, RCU).")
+@click.option("--union-bound", "union_bound", is_flag=True,
+              help="FER panel: add the union-bound terms A_w Q(sqrt(2 w R Eb/N0)) recorded in "
+                   "floor --json sources (lightest codewords; each decoder's lightest "
+                   "structures), labelled with weight and multiplicity.")
 @click.option("--no-ml-bound", is_flag=True,
               help="Leave out the ML lower bound counted in the simulation.")
 @click.option("--title", default=None,
               help="Figure title [default: code, n, k, channel and iteration cap].")
 @click.option("--force", is_flag=True, help="Overwrite an existing figure file.")
 def command(sources, output, run, metric, lines, threshold_codes, x_axis, no_uncoded,
-            no_shannon, with_limits, no_ml_bound, title, force):
+            no_shannon, with_limits, union_bound, no_ml_bound, title, force):
     """Draw BER and FER against Eb/N0 from SOURCES (stores, --json or --csv files).
 
     Several sources (codes, decoders) share one figure; a decoder keeps its
@@ -63,6 +67,12 @@ def command(sources, output, run, metric, lines, threshold_codes, x_axis, no_unc
     (frames where the decoder's valid output was at least as likely as the
     sent word) and, with --limits, the finite-length limits of each code's n
     and k.
+
+    A 'floor --json' source (told apart by its content) adds its
+    importance-sampling FER estimates to the FER panel: dashed, in the colour
+    and marker of the decoder's plain curve, with interval bars; a point with
+    too few effective hits shows only its upper bound (hollow marker and
+    caret). floor estimates FER only, so floor files need --metric fer or both.
     """
     from ..plots.curves import check_figure_path, curves_from_file, curves_from_store, plot_curves
 
@@ -84,15 +94,30 @@ def command(sources, output, run, metric, lines, threshold_codes, x_axis, no_unc
             if x_axis == "esn0":  # Es/N0 = R Eb/N0 at the design rate
                 value += 10.0 * math.log10(thr.rate)
             extra[f"BP threshold {code.name}"] = value
-    curves = []
+    from ..plots.floor import FER_ONLY_MESSAGE, floor_series_from_file, is_floor_file
+
+    curves, floors = [], []
     for src in sources:
-        if run is not None:
+        if is_floor_file(src):
+            if metric == "ber":
+                raise InputError(f"{src}: {FER_ONLY_MESSAGE}")
+            floors += floor_series_from_file(src)
+        elif run is not None:
             curves += curves_from_store(src, run=run)
         else:
             curves += curves_from_file(src)
+    if union_bound and not floors:
+        raise InputError("--union-bound draws the terms recorded in floor --json files; "
+                         "give one as a source.")
     metrics = ("ber", "fer") if metric == "both" else (metric,)
+    if not curves and floors:
+        metrics = ("fer",)  # floor files alone: there is no BER to draw
     plot_curves(curves, output, metrics=metrics, thresholds=extra, uncoded=not no_uncoded,
                 shannon=not no_shannon, title=title, x_axis=x_axis,
                 ml_lower_bound=not no_ml_bound, limits=with_limits,
-                progress=lambda text: click.echo(text, err=True))
-    click.echo(f"wrote {output} ({plural(len(curves), 'curve')})")
+                progress=lambda text: click.echo(text, err=True), floors=floors,
+                union_bound=union_bound)
+    drawn = plural(len(curves), "curve")
+    if floors:
+        drawn += f", {len(floors)} importance-sampling series"
+    click.echo(f"wrote {output} ({drawn})")

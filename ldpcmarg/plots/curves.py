@@ -259,6 +259,12 @@ def curves_from_file(path) -> list[Curve]:
     if stripped.startswith("{"):
         try:
             doc = json.loads(text)
+            from .floor import is_floor_document
+
+            if is_floor_document(doc):
+                raise InputError(f"{path!r} is a floor --json file (importance sampling); "
+                                 "read it with ldpcmarg.plots.floor.floor_series_from_file "
+                                 "and pass it to plot_curves(floors=...).")
             code, points = doc["code"], doc["points"]
             rate = float(code.get("rate", code["k"] / code["n"]))
             name = code.get("name", "")
@@ -340,6 +346,29 @@ def _short_code_extras(ax, curves, kind, x_left, x_right, ml_lower_bound, limits
         extras.draw_finite_length_limits(ax, kind, sizes, x_left, x_right, progress)
 
 
+def _floor_extras(ax, floors, styles, kind, one_code, x_left, x_right, union_bound,
+                  curve_labels) -> bool:
+    """Hook into :mod:`ldpcmarg.plots.floor` (importance-sampling series, union-bound terms)."""
+    from . import floor as extras
+
+    untrusted = extras.draw_floor_series(ax, floors, styles, kind, one_code)
+    curve_labels.update(extras.series_label(f, one_code) for f in floors)
+    if union_bound:
+        extras.draw_union_terms(ax, extras.union_terms_of(floors), styles, kind, x_left,
+                                x_right, one_code)
+    return untrusted
+
+
+def _legend_extras(floors) -> dict:
+    """Longer legend lines when dashed importance-sampling series are drawn (dashes show)."""
+    if not floors:
+        return {}
+    from matplotlib.legend_handler import HandlerTuple
+
+    # the untrustworthy symbol (marker, caret) side by side
+    return {"handlelength": 3.2, "handler_map": {tuple: HandlerTuple(ndivide=None)}}
+
+
 def _axis_kind(kind: str, x_axis: str) -> str:
     if x_axis not in ("ebn0", "esn0"):
         raise InputError(f"Unknown x axis {x_axis!r}; accepted: ebn0, esn0.")
@@ -384,15 +413,16 @@ def curves_title(curves, x_axis: str = "ebn0") -> str:
                          [c.decoder for c in curves])
 
 
-def _series_styles(curves) -> dict:
+def _series_styles(curves, reserved=()) -> dict:
     keys = list(dict.fromkeys((c.code, c.series) for c in curves))
-    return {key: LINESTYLES[i % len(LINESTYLES)] for i, key in enumerate(keys)}
+    free = [ls for ls in LINESTYLES if ls not in reserved] or list(LINESTYLES)
+    return {key: free[i % len(free)] for i, key in enumerate(keys)}
 
 
 def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict | None = None,
                 uncoded: bool = True, shannon: bool = True, title: str | None = None,
                 axes=None, x_axis: str = "ebn0", ml_lower_bound: bool = True,
-                limits: bool = False, progress=None):
+                limits: bool = False, progress=None, floors=None, union_bound: bool = False):
     """Draw BER and/or FER curves with confidence-interval error bars.
 
     Parameters
@@ -428,14 +458,27 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
         (:mod:`ldpcmarg.plots.limits`).
     progress : callable, optional
         Receives a line of text before each slow step (the limit curves).
+    floors : list of ldpcmarg.plots.floor.FloorSeries, optional
+        Importance-sampling FER series (``floor --json`` files), drawn on the FER
+        panel only, dashed in their decoder's colour and marker
+        (:mod:`ldpcmarg.plots.floor`). A BER panel needs plain curves.
+    union_bound : bool
+        FER panel: draw the union-bound terms recorded with ``floors``.
 
     Returns
     -------
     matplotlib.figure.Figure
     """
-    if not curves:
+    floors = list(floors or [])
+    if not curves and not floors:
         raise InputError("Nothing to plot: no points with frames.")
-    kinds = {c.x_kind for c in curves}
+    if floors and "ber" in tuple(metrics) and not curves:
+        from .floor import FER_ONLY_MESSAGE
+
+        raise InputError("Nothing to draw on the BER panel: " + FER_ONLY_MESSAGE)
+    if union_bound and not floors:
+        raise InputError("Union-bound terms come from floor --json files; give one as a source.")
+    kinds = {c.x_kind for c in [*curves, *floors]}
     if len(kinds) > 1:
         raise InputError(f"Cannot mix channel parameters on one axis: {sorted(kinds)}.")
     kind = _axis_kind(kinds.pop(), x_axis)
@@ -465,11 +508,12 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
     from matplotlib.lines import Line2D
 
     xcurves = [_axis_x(c, kind) for c in curves]
-    xs = np.concatenate(xcurves)
+    xs = np.concatenate(xcurves + [_axis_x(f, kind) for f in floors])
     xlo, xhi = float(xs.min()), float(xs.max())
     pad = 0.05 * (xhi - xlo) if xhi > xlo else 0.5
     lf = link_figure(curves, shannon, kind)  # link records: labels, title, limit lines
-    rates = lf.biawgn_rates                  # curves without a link: BI-AWGN limit
+    # curves without a link (and floor series): the BI-AWGN limit of their rate
+    rates = sorted({*lf.biawgn_rates, *(round(f.rate, 6) for f in floors)})
     thresholds = {**lf.lines, **(thresholds or {})}
     shannon_x = {}
     if shannon:
@@ -484,11 +528,12 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
     grid = np.linspace(x_left, x_right, 200)
     if kind not in ("ebn0_db", "esn0_db"):
         grid = grid[(grid > 0) & (grid < 1)]
-    styles = style_map([c.decoder for c in curves])
-    series = _series_styles(curves)
-    one_code = len(series) == 1
-    ks = sorted({int(c.k) for c in curves if c.k})
-    any_zero = False
+    styles = style_map([c.decoder for c in [*curves, *floors]])
+    # dashes mark importance sampling: plain curves keep off them when both are drawn
+    series = _series_styles(curves, reserved=("--",) if floors else ())
+    one_code = len(set(series) | {(f.code, "") for f in floors}) == 1
+    ks = sorted({int(c.k) for c in [*curves, *floors] if c.k})
+    any_zero = any_untrusted = False
     curve_labels = set()
     for ax, metric in zip(axes, metrics, strict=True):
         for c, x, c_label in zip(curves, xcurves, lf.labels, strict=True):
@@ -515,6 +560,9 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
             # (drawn against Eb/N0 or the BSC/BEC parameter, as the curves carry them)
             _short_code_extras(ax, curves, kind, x_left, x_right, ml_lower_bound, limits,
                                progress)
+        if metric == "fer" and floors:
+            any_untrusted = _floor_extras(ax, floors, styles, kind, one_code, x_left, x_right,
+                                          union_bound, curve_labels)
         if uncoded and grid.size:
             u, lab = _uncoded_ber(grid, kind)
             if metric == "ber":
@@ -541,11 +589,20 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
                 for c in curves if (getattr(c, metric) > 0).any()]
         lows += [float(np.min(getattr(c, metric + "_ci")[:, 1][getattr(c, metric) == 0]))
                  for c in curves if (getattr(c, metric) == 0).any()]
+        if metric == "fer" and floors:
+            from .floor import floor_y_lows
+
+            lows += floor_y_lows(floors)
         ymin = min(lows or [1e-6])
-        # a little head-room above 1 keeps reference curves near 1 (uncoded FER) visible
-        ax.set_ylim(max(ymin / 3, 1e-12), 1.5)
+        # a little head-room above 1 keeps reference curves near 1 (uncoded FER) visible;
+        # importance sampling reaches far lower rates than plain Monte Carlo
+        ax.set_ylim(max(ymin / 3, 1e-18 if floors and metric == "fer" else 1e-12), 1.5)
         ax.set_xlim(x_left, x_right)
-    conf = curves[0].confidence
+    conf = curves[0].confidence if curves else 0.95
+    if any_untrusted:
+        from .floor import untrustworthy_handle
+
+        untrusted = untrustworthy_handle(floors)
     zero_handle = Line2D([], [], ls="none", marker="o", mfc="none", color="0.3", ms=6,
                          label=f"hollow marker: no errors seen; upper {100 * conf:g} % "
                                "confidence limit")
@@ -562,15 +619,21 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
         if any_zero:
             hs.append(zero_handle)
             labels.append(zero_handle.get_label())
+        if any_untrusted:
+            hs.append(untrusted[0])
+            labels.append(untrusted[1])
         fig.legend(hs, labels, loc="outside lower center", ncols=2 if len(metrics) > 1 else 1,
-                   fontsize=7.5, frameon=False)
+                   fontsize=7.5, frameon=False, **_legend_extras(floors))
     else:
-        for ax in axes:
-            extra = [zero_handle] if any_zero else []
+        for ax, metric in zip(axes, metrics, strict=True):
+            extra = [(zero_handle, zero_handle.get_label())] if any_zero else []
+            if any_untrusted and metric == "fer":
+                extra.append(untrusted)
             h, lab = ax.get_legend_handles_labels()
-            ax.legend(h + extra, lab + [e.get_label() for e in extra], fontsize=7, loc="best")
+            ax.legend(h + [e[0] for e in extra], lab + [e[1] for e in extra], fontsize=7,
+                      loc="best", **_legend_extras(floors))
     if title is None:
-        title = curves_title(curves, x_axis)
+        title = curves_title([*curves, *floors], x_axis)
         if lf.title:
             title += "\n" + lf.title
     if title:
