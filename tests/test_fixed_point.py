@@ -340,3 +340,28 @@ def test_lane_function_reads_alpha_like_the_decoders(small_code):
         np.testing.assert_array_equal(post, res.posterior_llr)
         np.testing.assert_array_equal(it, res.iterations)
         np.testing.assert_array_equal(ok, res.valid)
+
+
+def test_simulate_takes_the_lanes_for_large_chunks(small_code, monkeypatch):
+    """A sweep in this process: the default kernel sends the sub-batches of 64+
+    frames to the lanes, and the counts equal those of the scalar kernel."""
+    from ldpcmarg.decoders import vectorised
+    from ldpcmarg.engine.simulate import StopRule, simulate
+
+    sizes = []
+    real = vectorised.decode_fixed_point_levels_lanes
+
+    def counting(code, levels, **kw):
+        sizes.append(levels.shape[0])
+        return real(code, levels, **kw)
+
+    monkeypatch.setattr(vectorised, "decode_fixed_point_levels_lanes", counting)
+    decs = ["fixed-offset-min-sum:q=5", "fixed-offset-min-sum:q=5,kernel=scalar"]
+    res = simulate(small_code, decs, [1.5, 2.5], seed=4, workers=1, chunk_frames=1500,
+                   stop=StopRule(frame_errors=10**6, max_frames=1500))
+    assert sizes and min(sizes) >= LANES   # the lanes ran, and only on batches of 64+
+    by = {}
+    for p in res.points:
+        by.setdefault(p.decoder, []).append((p.frames, p.frame_errors, p.bit_errors))
+    lanes, scalar = (by[make_decoder(d, small_code).spec] for d in decs)
+    assert lanes == scalar and len(lanes) == 2 and lanes[0][1] > 0
