@@ -43,8 +43,19 @@ tests (``tests/test_fixed_point.py``). The format, quoted:
 
 Points the format leaves to the implementation, as done here
 ------------------------------------------------------------
-* ``a = round(16 * alpha)`` is Python's ``round`` (half to even); the
-  effective alpha ``a / 16`` is reported by :attr:`effective_alpha`.
+* ``a = round(16 * alpha)`` is Python's ``round`` (half to even: alpha =
+  0.78125 gives a = 12, 0.84375 gives a = 14), computed once by
+  :func:`normalisation_steps` for this module and the lane kernels alike;
+  the effective alpha ``a / 16`` is reported by :attr:`effective_alpha`.
+* An empty minimum (a check of degree 1) is ``QMAX``: the running minimum
+  starts there, so such a check sends the saturated level (offset or
+  normalised), sign +, to its one bit -- as the float decoders send
+  ``LLR_MAX``.
+* Option ``kernel`` (``auto`` by default), as in :mod:`.message_passing`:
+  ``lanes`` decodes 64 frames side by side in int8 SIMD lanes
+  (:func:`ldpcmarg.decoders.vectorised.decode_fixed_point_lanes`, the same
+  arithmetic, bit for bit), ``scalar`` one frame at a time; ``auto`` takes
+  the lanes for batches of at least 64 frames.
 * "Same rule as the float decoders" (:mod:`.message_passing`): the stop test
   runs before the first iteration too (``iterations == 0`` when the channel
   decision is already a codeword) and after every full iteration; a check
@@ -75,6 +86,7 @@ __all__ = [
     "FixedOffsetMinSumDecoder",
     "FixedLayeredMinSumDecoder",
     "FixedLayeredOffsetMinSumDecoder",
+    "normalisation_steps",
     "quantize_channel",
 ]
 
@@ -83,10 +95,25 @@ _OFFSET = 1
 
 
 def quantize_channel(llr: np.ndarray, q: int, step: float) -> np.ndarray:
-    """Channel levels ``clip(rint(L / step), -QMAX, QMAX)`` (int8 array of the same shape)."""
+    """Channel levels ``clip(rint(L / step), -QMAX, QMAX)`` (int8 array of the same shape).
+
+    ``L`` is first clipped to ``+-LLR_MAX``; ``rint`` rounds half to even;
+    ``QMAX = 2**(q-1) - 1``. The one quantiser of the scalar and lane paths.
+    """
     qmax = 2 ** (q - 1) - 1
     x = np.clip(np.asarray(llr, dtype=np.float64), -LLR_MAX, LLR_MAX)
     return np.clip(np.rint(x / step), -qmax, qmax).astype(np.int8)
+
+
+def normalisation_steps(alpha: float) -> int:
+    """The integer factor ``a = round(16 * alpha)`` of normalised fixed-point min-sum.
+
+    Python's ``round`` (half to even, so 12.5 -> 12 and 13.5 -> 14); the
+    check node applies ``(a * min + 8) >> 4``, i.e. the effective alpha
+    ``a / 16`` with the product rounded half up. Shared by the scalar and
+    lane kernels so that both read alpha the same way.
+    """
+    return int(round(16 * float(alpha)))
 
 
 # --------------------------------------------------------------------- kernels
@@ -162,8 +189,10 @@ def _flood_frame(lq, check_ptr, edge_var, rule, a, beta, qmax, pmax, max_iter, c
         for c in range(m):
             a0 = check_ptr[c]
             b0 = check_ptr[c + 1]
-            min1 = 1 << 30
-            min2 = 1 << 30
+            # an empty minimum is QMAX (a degree-1 check sends the saturated level;
+            # a larger start would wrap around in the int8 message)
+            min1 = qmax
+            min2 = qmax
             idx = b0
             neg = 0
             for e in range(a0, b0):
@@ -216,8 +245,10 @@ def _layered_frame(lq, check_ptr, edge_var, rule, a, beta, qmax, pmax, max_iter,
         for c in range(m):
             a0 = check_ptr[c]
             b0 = check_ptr[c + 1]
-            min1 = 1 << 30
-            min2 = 1 << 30
+            # an empty minimum is QMAX (a degree-1 check sends the saturated level;
+            # a larger start would wrap around in the int8 message)
+            min1 = qmax
+            min2 = qmax
             idx = b0
             neg = 0
             for e in range(a0, b0):
@@ -302,6 +333,10 @@ def _fixed_params() -> dict[str, Param]:
         "max_iter": Param("int", 50, low=1, doc="maximum number of iterations"),
         "threads": Param("int", 0, low=0,
                          doc="threads for the frame-parallel loop (0 = numba's current setting)"),
+        "kernel": Param("choice", "auto", choices=("auto", "scalar", "lanes"),
+                        doc="'lanes': frame-interleaved int8 SIMD kernels "
+                            "(ldpcmarg.decoders.vectorised, bit-exact); 'scalar': one frame "
+                            "at a time; 'auto': lanes for batches of at least 64 frames"),
     }
 
 
@@ -319,7 +354,7 @@ class _FixedPoint(Decoder):
             raise InputError(f"The 'q_post' option of {self.name} must be >= q = {o['q']}; got "
                              f"{o['q_post']}.")
         if self._rule == _NORMALISED:
-            a = round(16 * float(o["alpha"]))
+            a = normalisation_steps(o["alpha"])
             if not 1 <= a <= 16:
                 raise InputError(f"The 'alpha' option of {self.name} rounds to {a}/16; it must "
                                  "be at least 1/32 so that a = round(16 alpha) >= 1.")
@@ -361,8 +396,38 @@ class _FixedPoint(Decoder):
         """Channel levels of (F, n) LLRs (int8), as the decoder sees them."""
         return quantize_channel(llr, self.options["q"], self.options["step"])
 
+    def _use_lanes(self, F: int) -> bool:
+        """Whether a batch of ``F`` frames goes to the lane kernels (option ``kernel``)."""
+        kernel = self.options.get("kernel", "scalar")
+        if kernel == "scalar" or self.code.m == 0:
+            return False
+        if kernel == "lanes":
+            return True
+        from .vectorised import LANES
+
+        return F >= LANES
+
+    def _run_lanes(self, llr, lq):
+        """The lane path of :meth:`_run` (same outputs, same arithmetic)."""
+        from .message_passing import _Threads
+        from .vectorised import decode_fixed_point_levels_lanes
+
+        if lq is None:
+            lq = self.quantize(llr)
+        o = self.options
+        with _Threads(o["threads"]):
+            post, iters, valid = decode_fixed_point_levels_lanes(
+                self.code, lq, q=int(o["q"]), q_post=int(o["q_post"]),
+                offset=self._rule == _OFFSET,
+                factor=int(self._beta if self._rule == _OFFSET else self._a),
+                layered=self._layered, max_iter=int(o["max_iter"]), threads=o["threads"])
+        # P * step, exactly the scalar kernel's float64 product
+        return post * float(o["step"]), post, iters, valid
+
     def _run(self, llr, lq):
         F, n = (llr if lq is None else lq).shape
+        if self._use_lanes(F):
+            return self._run_lanes(llr, lq)
         post = np.zeros((F, n), dtype=np.int16)
         post_llr = np.empty((F, n), dtype=np.float64)
         iters = np.zeros(F, dtype=np.int64)
@@ -407,8 +472,9 @@ class FixedMinSumDecoder(_FixedPoint):
     """Fixed-point normalised min-sum, flooding (alpha = 1 is plain min-sum).
 
     Options: ``q`` (6), ``step`` (0.5), ``q_post`` (q + 2), ``alpha`` (1.0,
-    applied as ``a/16``), ``max_iter`` (50), ``threads`` (0). Arithmetic in
-    the module docstring.
+    applied as ``a/16`` with ``a = round(16 alpha)``, half to even),
+    ``max_iter`` (50), ``threads`` (0), ``kernel`` ("auto": int8 lanes for
+    batches of 64+ frames). Arithmetic in the module docstring.
     """
 
     name = "fixed-min-sum"
