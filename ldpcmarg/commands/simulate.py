@@ -299,6 +299,11 @@ def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_f
                           channel=channel)
     for v in grid:
         _point_channel(SNR_KINDS[snr_kind], snr_kind, v, code_obj.rate)
+    from ..engine.simulate import default_chunk_frames, require_chunk_memory
+
+    # a chunk too large for memory is refused before the store is opened
+    largest_chunk = min(chunk_frames or default_chunk_frames(code_obj.n), max_frames)
+    require_chunk_memory(largest_chunk, code_obj, random_codewords=random_codewords)
 
     executor = None
     if cluster and workers is not None:
