@@ -17,7 +17,15 @@ from ._version import __version__
 from .code.parity_check import ParityCheckCode
 from .decoders.base import Decoder, DecodeResult, decoder_names, make_decoder
 from .engine.simulate import simulate
-from .errors import InputError, LdpcmargError, SolverError, StoreError
+from .errors import (
+    CodeFileError,
+    InputError,
+    LdpcmargError,
+    MissingExtraError,
+    ResourceError,
+    SolverError,
+    StoreError,
+)
 from .link.channels import make_channel
 
 
@@ -56,4 +64,7 @@ __all__ = [
     "InputError",
     "SolverError",
     "StoreError",
+    "CodeFileError",
+    "MissingExtraError",
+    "ResourceError",
 ]

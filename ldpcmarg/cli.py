@@ -9,13 +9,16 @@ status 2, never a traceback.
 
 from __future__ import annotations
 
+import contextlib
 import importlib
+import signal
 import sys
+import threading
 
 import click
 
 from ._version import __version__
-from .errors import LdpcmargError
+from .errors import LdpcmargError, RunInterrupted
 
 # command name -> (module under ldpcmarg.commands, short help)
 COMMANDS: dict[str, tuple[str, str]] = {
@@ -70,12 +73,50 @@ def cli():
     """
 
 
-def main(argv=None):
-    """Run the CLI; turn package errors into one clear message (exit status 2)."""
+def _raise_interrupt(signum, frame):
+    raise KeyboardInterrupt
+
+
+@contextlib.contextmanager
+def _sigterm_as_interrupt():
+    """SIGTERM stops a command as cleanly as Ctrl-C (stores closed, one line, status 130)."""
+    if threading.current_thread() is not threading.main_thread() \
+            or signal.getsignal(signal.SIGTERM) is None:  # not ours to replace
+        yield
+        return
+    old = signal.signal(signal.SIGTERM, _raise_interrupt)
     try:
-        cli.main(args=argv, prog_name="ldpcmarg", standalone_mode=False)
-    except click.exceptions.Abort:
-        click.echo("Aborted.", err=True)
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, old)
+
+
+def _interrupt_line(exc: BaseException) -> str:
+    """The one line printed for a Ctrl-C or SIGTERM (the command's own, if it gave one)."""
+    seen = set()
+    while exc is not None and id(exc) not in seen:
+        if isinstance(exc, RunInterrupted) and str(exc):
+            return str(exc)
+        seen.add(id(exc))
+        exc = exc.__cause__ or exc.__context__
+    return "Interrupted."
+
+
+def main(argv=None):
+    """Run the CLI; turn package errors into one clear message (exit status 2).
+
+    Ctrl-C and SIGTERM end with one line on stderr and exit status 130.
+    """
+    try:
+        with _sigterm_as_interrupt():
+            cli.main(args=argv, prog_name="ldpcmarg", standalone_mode=False)
+    except click.exceptions.Abort as exc:
+        # click turns a KeyboardInterrupt inside a command into Abort (after ending the line)
+        cause = exc.__cause__ or exc.__context__
+        if isinstance(cause, KeyboardInterrupt):
+            click.echo(_interrupt_line(cause), err=True)
+        else:
+            click.echo("Aborted.", err=True)
         sys.exit(130)
     except click.ClickException as exc:
         exc.show()
@@ -85,8 +126,8 @@ def main(argv=None):
     except LdpcmargError as exc:
         click.echo(f"Error: {exc}", err=True)
         sys.exit(2)
-    except KeyboardInterrupt:
-        click.echo("Interrupted.", err=True)
+    except KeyboardInterrupt as exc:
+        click.echo(_interrupt_line(exc), err=True)
         sys.exit(130)
     except (FileNotFoundError, PermissionError, IsADirectoryError) as exc:
         click.echo(f"Error: {exc.strerror or exc}: {exc.filename}", err=True)

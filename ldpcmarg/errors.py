@@ -35,3 +35,12 @@ class MissingExtraError(LdpcmargError, ImportError):
 
 class ResourceError(LdpcmargError, MemoryError):
     """An operation would need more memory than this machine can spare (estimated first)."""
+
+
+class RunInterrupted(KeyboardInterrupt):
+    """Ctrl-C or SIGTERM stopped a command; the message says what was kept and how to go on.
+
+    A :class:`KeyboardInterrupt` (not an :class:`LdpcmargError`): code that
+    cleans up on Ctrl-C sees it as one. The command line prints its message as
+    the single line of the interruption, with exit status 130.
+    """

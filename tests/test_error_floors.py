@@ -4,6 +4,10 @@ from __future__ import annotations
 
 import json
 import math
+import os
+import subprocess
+import sys
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -216,3 +220,36 @@ def test_pseudocodewords_command_contract(tmp_path, capsys):
     assert w == sorted(w)
     assert all(isinstance(it["support"], list) for it in items)
     assert w[0] <= 3 + 1e-9  # d_min(Hamming 7,4) = 3 (MacWilliams & Sloane), w_p <= d_min
+
+
+def test_floor_command_with_lp_writes_pseudo_codewords_in_a_subprocess(tmp_path):
+    # floor -d lp used to stop with a traceback on the first pseudo-codeword (no trapping-set b)
+    out = tmp_path / "floor.json"
+    env = dict(os.environ, PYTHONPATH=str(Path(__file__).resolve().parents[1]))
+    done = subprocess.run(
+        [sys.executable, "-m", "ldpcmarg", "floor", "hamming-7-4", "-d", "lp", "--ebn0", "4",
+         "--seed", "0", "--pseudo-starts", "20", "--max-frames", "1000", "--chunk-frames", "500",
+         "--workers", "1", "-q", "--json", str(out), "--store", str(tmp_path / "f.sqlite")],
+        env=env, capture_output=True, text=True, timeout=120)
+    assert done.returncode == 0 and "Traceback" not in done.stderr, done.stderr
+    doc = json.loads(out.read_text())
+    found = doc["searches"]["lp"]["structures"]
+    kinds = {s["kind"] for s in found}
+    assert "pseudo-codeword" in kinds, kinds
+    for s in found:
+        assert s["a"] == len(s["bits"])
+        if s["kind"] == "codeword":
+            # a codeword satisfies every check (definition): no odd-degree check
+            assert s["b"] == 0
+        else:
+            assert "b" not in s  # fractional: no trapping-set (a, b) label
+    # w_p <= d_min = 3 for Hamming(7,4) (MacWilliams & Sloane; w_p of a codeword = its weight)
+    assert min(s["pseudo_weight"] for s in found) <= 3 + 1e-9
+    # the stored search is read back on a second run (from_dict without b)
+    again = subprocess.run(
+        [sys.executable, "-m", "ldpcmarg", "floor", "hamming-7-4", "-d", "lp", "--ebn0", "4",
+         "--seed", "0", "--pseudo-starts", "20", "--max-frames", "1000", "--chunk-frames", "500",
+         "--workers", "1", "--json", str(out), "--force", "--store", str(tmp_path / "f.sqlite")],
+        env=env, capture_output=True, text=True, timeout=120)
+    assert again.returncode == 0 and "reusing the stored structure search" in again.stderr
+    assert json.loads(out.read_text())["searches"]["lp"]["structures"] == found

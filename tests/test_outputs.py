@@ -17,6 +17,10 @@ ROOT = Path(__file__).resolve().parents[1]
 SIM = ["simulate", "hamming-7-4", "-d", "sum-product", "--ebn0", "2", "--frame-errors", "5",
        "--max-frames", "400", "--chunk-frames", "100", "--workers", "1", "-q"]
 
+# a small error-floor run: a few impulse candidates, few frames, in-process
+FLOOR = ["floor", "hamming-7-4", "-d", "sum-product", "--ebn0", "4", "--candidates", "5",
+         "--max-frames", "400", "--chunk-frames", "200", "--workers", "1", "-q"]
+
 
 def _llr_file(tmp_path) -> Path:
     path = tmp_path / "llr.npy"
@@ -42,11 +46,15 @@ def _commands(tmp_path, out_name: str):
                              "--frames", "8", "--reference", "none", "--quiet",
                              "--plots", d / "figs"], d / "figs" / "compare_reliability.png"),
         "plot -o": (["plot", d / "src.json", "-o", d / "o.png"], d / "o.png"),
+        "floor --json": (FLOOR + ["--json", d / "o.json"], d / "o.json"),
+        "pseudocodewords --json": (["pseudocodewords", "hamming-7-4", "--starts", "3",
+                                    "--json", d / "o.json"], d / "o.json"),
     }[out_name]
 
 
 ALL = ["simulate --json", "simulate --csv", "simulate --plot", "posteriors -o", "build -o",
-       "compare --json", "compare --plots", "plot -o"]
+       "compare --json", "compare --plots", "plot -o", "floor --json",
+       "pseudocodewords --json"]
 
 
 @pytest.fixture
@@ -160,3 +168,43 @@ def test_json_equal_to_store_refused_in_a_subprocess(tmp_path):
                            text=True, timeout=120)
     assert again.returncode == 2 and "same file as the store" in again.stderr
     assert "Traceback" not in again.stderr and _store_rows(store) == rows
+
+
+def test_floor_json_equal_to_its_store_refused_in_a_subprocess(tmp_path):
+    # floor used to open --json for writing itself, so a --json naming its own store
+    # (here through a symbolic link) replaced the SQLite file after the whole run
+    store = tmp_path / "f.sqlite"
+    env = dict(os.environ, PYTHONPATH=str(ROOT))
+    cmd = [sys.executable, "-m", "ldpcmarg"] + [str(a) for a in FLOOR] + ["--store", str(store)]
+    first = subprocess.run(cmd, env=env, capture_output=True, text=True, timeout=120)
+    assert first.returncode == 0, first.stderr
+    rows, before = _store_rows(store), store.read_bytes()
+    link = tmp_path / "f.json"
+    link.symlink_to(store)
+    again = subprocess.run(cmd + ["--json", str(link), "--force"], env=env,
+                           capture_output=True, text=True, timeout=120)
+    assert again.returncode == 2 and "same file as the store" in again.stderr
+    assert again.stderr.count("\n") == 1 and "Traceback" not in again.stderr
+    assert _store_rows(store) == rows and store.read_bytes() == before
+
+
+def test_pseudocodewords_and_build_refuse_to_overwrite_their_inputs(tmp_path, capsys):
+    code = tmp_path / "h.txt"
+    status, _, err = run_cli(["build", "hamming", "--parity-bits", "3", "-o", code], capsys)
+    assert status == 0, err
+    before = code.read_bytes()
+    status, _, err = run_cli(["pseudocodewords", code, "--starts", "2", "--json", code,
+                              "--force"], capsys)
+    assert status == 2 and "same file as the code file" in err and code.read_bytes() == before
+    exps = tmp_path / "e.txt"
+    exps.write_text("0 1\n1 0\n")
+    status, _, err = run_cli(["build", "qc", "--exponents", f"@{exps}", "--circulant", "3",
+                              "-o", exps, "--format", "txt", "--force"], capsys)
+    assert status == 2 and "same file as the exponent file" in err
+    assert exps.read_text() == "0 1\n1 0\n"
+
+
+def test_floor_refuses_a_missing_folder_before_any_work(tmp_path, capsys):
+    status, out, err = run_cli(FLOOR + ["--json", tmp_path / "no" / "f.json"], capsys)
+    assert status == 2 and "does not exist; create it first" in err
+    assert "FER" not in out and not (tmp_path / "no").exists()

@@ -91,3 +91,38 @@ def test_uncoded_fer_formula():
     # k independent bits: P(frame error) = 1 - (1 - p)^k (common practice)
     assert uncoded_fer(0.01, 100) == pytest.approx(1 - 0.99 ** 100, rel=1e-12)
     assert uncoded_fer(0.0, 10) == 0.0
+
+
+def test_ml_lower_bound_lines_take_their_decoders_style_not_the_list_position(tmp_path):
+    from matplotlib.colors import to_hex
+
+    from ldpcmarg.plots.floor import IS_DASHES, UNION_LINESTYLE
+    from ldpcmarg.plots.limits import ML_LB_LINESTYLE, ml_lower_bound_style
+    from ldpcmarg.plots.style import LINESTYLES
+
+    def with_bound(decoder, fer):
+        c = _curve(decoder, [1, 2, 3], fer)
+        c.ml_lb = np.asarray(fer) / 4
+        c.ml_lb_ci = np.column_stack([c.ml_lb / 2, c.ml_lb * 2])
+        return c
+
+    def bound_lines(curves):
+        fig = plot_curves(curves, tmp_path / "f.png", metrics=("fer",))
+        lines = fig.axes[0].get_lines()
+        return {ln.get_label().split(": ")[1]: ln for ln in lines
+                if ln.get_label().endswith("ML lower bound")}
+
+    decs = ["min-sum", "lp", "sum-product"]
+    fers = [[0.5, 0.1, 0.02], [0.4, 0.08, 0.01], [0.3, 0.05, 0.005]]
+    forward = bound_lines([with_bound(d, f) for d, f in zip(decs, fers, strict=True)])
+    backward = bound_lines([with_bound(d, f) for d, f in
+                            zip(decs[::-1], fers[::-1], strict=True)])
+    styles = style_map(decs)
+    for d in decs:
+        for ln in (forward[d], backward[d]):
+            # the decoder's colour and marker, whatever its place in the list
+            assert to_hex(ln.get_color()) == styles[d]["color"]
+            assert ln.get_marker() == styles[d]["marker"]
+    # dash-dot-dot: none of the plain, importance-sampling or union-bound line styles
+    assert ML_LB_LINESTYLE not in (*LINESTYLES, *IS_DASHES, UNION_LINESTYLE)
+    assert ml_lower_bound_style(styles["lp"])["ls"] == ML_LB_LINESTYLE

@@ -2,6 +2,11 @@
 
 from __future__ import annotations
 
+import os
+import subprocess
+import sys
+from pathlib import Path
+
 import numpy as np
 import pytest
 from scipy.special import erfc
@@ -228,3 +233,50 @@ def test_unresolved_bec_erasures_count_as_errors():
     # 128000 bits, binomial sd of the rate = sqrt(0.2*0.8/128000) = 1.1e-3: 5 sd = 0.0056
     assert abs(p.bit_errors / (2000 * 64) - 0.2) < 0.0056
     assert p.undetected_errors == 0
+
+
+# ---------------------------------------------------------------- chunk memory
+def test_chunk_memory_estimate_covers_the_llr_array():
+    from ldpcmarg.engine.simulate import chunk_memory_bytes
+
+    # a chunk holds at least its (frames, n) float64 LLRs: 8 bytes each (IEEE 754 double)
+    for frames, n in ((1, 7), (1000, 504), (8192, 2016)):
+        assert chunk_memory_bytes(frames, n, 3 * n) >= frames * n * 8
+    # more frames, more memory
+    assert chunk_memory_bytes(2000, 504, 1512) > chunk_memory_bytes(1000, 504, 1512)
+
+
+def test_huge_chunk_is_one_resource_error_before_any_work(monkeypatch):
+    import ldpcmarg
+    from ldpcmarg.engine.simulate import ChunkTask, SweepContext, run_chunk
+
+    assert issubclass(ldpcmarg.ResourceError, ldpcmarg.LdpcmargError)
+    assert issubclass(ldpcmarg.ResourceError, MemoryError)
+    code = ldpcmarg.load_code("hamming-7-4")
+    monkeypatch.setenv("LDPCMARG_MEMORY_LIMIT", "1M")
+    stop = StopRule(frame_errors=10, max_frames=10**9)
+    with pytest.raises(ldpcmarg.ResourceError, match="--chunk-frames"):
+        simulate(code, ["sum-product"], [2.0], stop=stop, chunk_frames=10**8)
+    # the worker side checks too, before drawing the chunk's frames
+    ctx = SweepContext(H=code.H, code_name=code.name, code_source=code.source, rate=code.rate,
+                       decoders=("sum-product",), snr_kind="ebn0_db", seed=1,
+                       random_codewords=False, key="k", link=None)
+    with pytest.raises(ldpcmarg.ResourceError):
+        run_chunk(ctx, ChunkTask(point_key=0, chunk_index=0, snr=2.0, frames=10**8,
+                                 decoders=(0,)))
+
+
+def test_cli_huge_chunk_frames_is_one_clear_error_in_a_subprocess(tmp_path):
+    env = dict(os.environ, PYTHONPATH=str(Path(__file__).resolve().parents[1]),
+               LDPCMARG_MEMORY_LIMIT="64M")
+    store = tmp_path / "s.sqlite"
+    # 10^6 frames x 504 bits of float64 LLRs alone are 4 GB, far above 64 MiB
+    done = subprocess.run(
+        [sys.executable, "-m", "ldpcmarg", "simulate", "peg-504-3-6", "-d", "min-sum",
+         "--ebn0", "2", "--chunk-frames", "1000000", "--max-frames", "1000000",
+         "--workers", "1", "-q", "--store", str(store)],
+        env=env, capture_output=True, text=True, timeout=120)
+    assert done.returncode == 2, done.stderr
+    assert done.stderr.startswith("Error: A chunk of 1000000 frames")
+    assert done.stderr.count("\n") == 1 and "--chunk-frames" in done.stderr
+    assert "Traceback" not in done.stderr and not store.exists()

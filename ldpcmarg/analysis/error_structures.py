@@ -141,8 +141,12 @@ class ErrorStructure:
     def to_dict(self) -> dict:
         out = {"kind": self.kind, "bits": [int(i) for i in self.bits],
                "effective_weight": round(self.effective_weight, 6), "hits": int(self.hits)}
+        # a and b are written separately: a pseudo-codeword has a support size a
+        # but no trapping-set b (its values are fractional), so b stays None there
         if self.a is not None:
-            out["a"], out["b"] = int(self.a), int(self.b)
+            out["a"] = int(self.a)
+        if self.b is not None:
+            out["b"] = int(self.b)
         if self.elementary is not None:
             out["elementary"] = bool(self.elementary)
         if self.threshold is not None:

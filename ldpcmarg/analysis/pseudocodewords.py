@@ -146,9 +146,12 @@ def instanton_search(code, *, starts: int = 60, start_ebn0_db: float | None = No
         wp = awgn_pseudo_weight(vals)
         integral = bool(np.all(np.minimum(vals, 1.0 - vals) <= 1e-6))
         shift = -(vals.sum() / np.dot(vals, vals)) * vals
+        # an integral vertex of the fundamental polytope is a codeword: no odd check (b = 0);
+        # a fractional one has no trapping-set b
         structures.append(ErrorStructure(
             kind="codeword" if integral else "pseudo-codeword", bits=bits, shift=shift,
-            a=int(bits.size), b=None, hits=int(hits), decoder="lp", pseudo_weight=wp))
+            a=int(bits.size), b=0 if integral else None, hits=int(hits), decoder="lp",
+            pseudo_weight=wp))
     structures.sort(key=lambda s: (s.pseudo_weight, s.bits.size, tuple(s.bits)))
     settings = {"starts": int(starts), "start_ebn0_db": float(start_ebn0_db),
                 "max_steps": int(max_steps), "overshoot": overshoot, "seed": int(seed),

@@ -162,6 +162,9 @@ def command(construction, output, fmt, name, force, **opts):
     Example: ldpcmarg build peg -n 504 --bit-degree 3 --check-degree 6 --seed 1 -o peg504.txt
     """
     outputs = Outputs(force)
+    exponents = opts.get("exponents") or ""
+    if exponents.startswith("@"):
+        outputs.protect_if_file(exponents[1:], f"the exponent file --exponents {exponents}")
     outputs.add(output, "-o")
     outputs.check()
     code = build_code(construction, **opts)

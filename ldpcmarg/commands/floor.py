@@ -9,6 +9,7 @@ import sys
 
 import click
 
+from ._outputs import Outputs
 from .simulate import GRID_HELP
 
 CAUTION = ("Importance-sampling error rates are estimates aimed at the structures the search "
@@ -74,10 +75,11 @@ def union_terms(code, codewords, structures, ebn0_db: float) -> dict:
               help="Results store: chunks and the structure search are kept and reused.")
 @click.option("--confidence", type=click.FloatRange(0, 1, min_open=True, max_open=True),
               default=0.95, show_default=True)
+@click.option("--force", is_flag=True, help="Overwrite an existing --json file.")
 @click.option("-q", "--quiet", is_flag=True, help="No progress on stderr.")
 def command(code_arg, decoders, ebn0, seed, json_path, search_ebn0, candidates, max_structures,
             pseudo_starts, max_frames, rel_half_width, min_effective_hits, defensive,
-            chunk_frames, time_budget, workers, cluster, store, confidence, quiet):
+            chunk_frames, time_budget, workers, cluster, store, confidence, force, quiet):
     """Find the error structures of CODE under each decoder and estimate FER by importance sampling.
 
     For every decoder: a structure search (trapping sets for message passing,
@@ -100,6 +102,11 @@ def command(code_arg, decoders, ebn0, seed, json_path, search_ebn0, candidates, 
     from ..engine.store import Store
     from ..errors import InputError
 
+    outputs = Outputs(force)
+    outputs.protect(store, f"the store --store {store}", store=True)
+    outputs.protect_if_file(code_arg, f"the code file {code_arg}")
+    outputs.add(json_path, "--json")
+    outputs.check()
     code = load_code(code_arg)
     grid = parse_grid(ebn0, "--ebn0")
     specs = []

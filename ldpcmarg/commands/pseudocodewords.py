@@ -7,6 +7,8 @@ import sys
 
 import click
 
+from ._outputs import Outputs
+
 
 @click.command("pseudocodewords")
 @click.argument("code_arg", metavar="CODE")
@@ -21,7 +23,8 @@ import click
               show_default=True, help="Seconds for the whole search.")
 @click.option("--top", type=click.IntRange(1), default=10, show_default=True,
               help="Rows of the printed table.")
-def command(code_arg, json_path, starts, start_ebn0, seed, time_budget, top):
+@click.option("--force", is_flag=True, help="Overwrite an existing --json file.")
+def command(code_arg, json_path, starts, start_ebn0, seed, time_budget, top, force):
     """Search LP pseudo-codewords of CODE by the instanton method (Chertkov & Stepanov 2008).
 
     The AWGN pseudo-weight (sum w)^2 / sum w^2 plays the role of the Hamming
@@ -32,6 +35,10 @@ def command(code_arg, json_path, starts, start_ebn0, seed, time_budget, top):
     from .. import load_code
     from ..analysis.pseudocodewords import instanton_search
 
+    outputs = Outputs(force)
+    outputs.protect_if_file(code_arg, f"the code file {code_arg}")
+    outputs.add(json_path, "--json")
+    outputs.check()
     code = load_code(code_arg)
 
     def progress(done, total, best):

@@ -10,7 +10,7 @@ import time
 
 import click
 
-from ..errors import InputError
+from ..errors import InputError, RunInterrupted
 from ._link_options import build_cli_link, link_input_files, link_options
 from ._outputs import Outputs
 
@@ -299,6 +299,11 @@ def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_f
                           channel=channel)
     for v in grid:
         _point_channel(SNR_KINDS[snr_kind], snr_kind, v, code_obj.rate)
+    from ..engine.simulate import default_chunk_frames, require_chunk_memory
+
+    # a chunk too large for memory is refused before the store is opened
+    largest_chunk = min(chunk_frames or default_chunk_frames(code_obj.n), max_frames)
+    require_chunk_memory(largest_chunk, code_obj, random_codewords=random_codewords)
 
     executor = None
     if cluster and workers is not None:
@@ -320,10 +325,11 @@ def command(code, decoders, channel, ebn0, esn0, param_grid, frame_errors, max_f
                        chunk_frames=chunk_frames, random_codewords=random_codewords,
                        workers=workers, executor=executor, store=store, progress=progress,
                        confidence=confidence, link=link)
-    except KeyboardInterrupt:
-        if store is not None:
-            click.echo(f"\nInterrupted; finished chunks are kept in {store_path}. Run the same "
-                       "command again to continue.", err=True)
+    except KeyboardInterrupt as exc:
+        if store is not None and not isinstance(exc, RunInterrupted):
+            # the CLI prints this message as the one line of the interruption
+            raise RunInterrupted(f"Interrupted; finished chunks are kept in {store_path}. Run "
+                                 "the same command again to continue.") from exc
         raise
     finally:
         progress.close()

@@ -174,11 +174,54 @@ def _exit_with_parent() -> None:
 
 def _init_worker(func, context):
     global _WORKER_FUNC, _WORKER_CTX
-    # The coordinator handles Ctrl-C and stops the pool; workers ignore SIGINT.
+    # The coordinator alone handles Ctrl-C and SIGTERM and stops the pool (a short grace,
+    # then SIGKILL); a worker hit by the terminal's SIGINT or a process-group SIGTERM would
+    # otherwise die mid-chunk or print a KeyboardInterrupt traceback.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_IGN)
+    # numba guards its thread-pool start with a multiprocessing RLock whenever the default
+    # start method contains "fork" (a forkserver child inherits "forkserver"): a named
+    # semaphore registered with the resource tracker, which a killed worker never unlinks
+    # ("leaked semaphore objects" at shutdown). This worker starts no processes of its own,
+    # so its default start method may be "spawn", for which numba takes a plain lock.
+    mp.set_start_method("spawn", force=True)
     _WORKER_FUNC, _WORKER_CTX = func, context
     _one_numba_thread()
     _exit_with_parent()
+
+
+class _DeferSignals:
+    """Hold SIGINT and SIGTERM while worker processes are being started.
+
+    A KeyboardInterrupt raised inside ``Process.start`` (e.g. while waiting for
+    the forkserver to report the new pid) leaves a child the pool does not
+    know about; the coordinator then exits and unlinks the pool's semaphores
+    while that child is still unpickling them (``SemLock._rebuild``
+    FileNotFoundError traceback). Signals that arrive inside the block are
+    recorded and raised again, with the usual handlers, once it ends.
+    """
+
+    SIGNALS = (signal.SIGINT, signal.SIGTERM)
+
+    def __enter__(self):
+        self._caught: list[int] = []
+        self._old: dict = {}
+        if threading.current_thread() is threading.main_thread():
+            for sig in self.SIGNALS:
+                old = signal.getsignal(sig)
+                if old is not None:  # None: a handler not set from Python; leave it alone
+                    self._old[sig] = signal.signal(sig, self._record)
+        return self
+
+    def _record(self, signum, frame):
+        self._caught.append(signum)
+
+    def __exit__(self, *exc_info):
+        for sig, old in self._old.items():
+            signal.signal(sig, old)
+        for sig in dict.fromkeys(self._caught):
+            signal.raise_signal(sig)  # now met by the handler it would have met
+        return False
 
 
 def _run_in_worker(task):
@@ -210,12 +253,14 @@ class ProcessExecutor(Executor):
         self._pool = None
 
     def start(self, func, context):
-        self._pool = cf.ProcessPoolExecutor(
-            max_workers=self.workers, mp_context=mp.get_context(self._method),
-            initializer=_init_worker, initargs=(func, context))
+        with _DeferSignals():
+            self._pool = cf.ProcessPoolExecutor(
+                max_workers=self.workers, mp_context=mp.get_context(self._method),
+                initializer=_init_worker, initargs=(func, context))
 
     def submit(self, task):
-        return self._pool.submit(_run_in_worker, task)
+        with _DeferSignals():  # a submit may start a worker process (and the forkserver)
+            return self._pool.submit(_run_in_worker, task)
 
     def wait(self, handles, timeout):
         done, _ = cf.wait(handles, timeout=timeout, return_when=cf.FIRST_COMPLETED)
@@ -238,8 +283,10 @@ class ProcessExecutor(Executor):
         if pool is None:
             return
         if abort:
-            # queued chunks are dropped; running ones get a short grace period to finish
-            # (a clean exit frees the pool's locks), then are terminated
+            # queued chunks are dropped; running ones get a short grace period to finish,
+            # then are killed (workers ignore SIGTERM; they hold no named semaphores, so
+            # nothing leaks). Every worker is gone before this process unlinks the
+            # pool's own semaphores at exit.
             procs = list((getattr(pool, "_processes", None) or {}).values())
             pool.shutdown(wait=False, cancel_futures=True)
             deadline = time.monotonic() + self.grace_seconds
@@ -247,7 +294,7 @@ class ProcessExecutor(Executor):
                 p.join(timeout=max(deadline - time.monotonic(), 0.0))
             for p in procs:
                 if p.is_alive():
-                    p.terminate()
+                    p.kill()
             for p in procs:
                 p.join(timeout=5)
         else:

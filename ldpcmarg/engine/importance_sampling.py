@@ -67,7 +67,7 @@ import scipy.sparse as sp
 
 from ..errors import InputError
 from . import stats
-from .simulate import point_key
+from .simulate import point_key, require_chunk_memory
 
 __all__ = [
     "Bias",
@@ -215,6 +215,12 @@ def _state(ctx: ISContext):
     return st
 
 
+def _is_extra_bytes(frames: int, structures: int) -> int:
+    """Bytes of a chunk's mixture terms beyond the LLRs: noise, K+1 log terms (float64,
+    with two temporaries each), weights."""
+    return int(frames) * 8 * (3 * (int(structures) + 1) + 4)
+
+
 def run_is_chunk(ctx: ISContext, task: ISTask) -> dict:
     """Decode one importance-sampling chunk (runs on a worker).
 
@@ -235,6 +241,7 @@ def run_is_chunk(ctx: ISContext, task: ISTask) -> dict:
     t0 = time.perf_counter()
     n, F = code.n, int(task.frames)
     K = M.shape[0]
+    require_chunk_memory(F, code, sub_batch=F, extra=_is_extra_bytes(F, K))
     weights = np.asarray(ctx.weights[task.point_key], dtype=np.float64)
     scale = float(ctx.scales[task.point_key])
     sigma = ebn0_to_sigma(task.ebn0_db, ctx.rate)
@@ -544,6 +551,10 @@ def estimate_floor(code, decoder: str, biases, ebn0_db, *, seed: int = 0,
     chunk_frames = 512 if chunk_frames is None else int(chunk_frames)
     if chunk_frames < 1:
         raise InputError(f"The chunk size must be >= 1 frames; got {chunk_frames}.")
+    # a chunk is decoded in one batch; refuse one too large before any work
+    largest_chunk = min(chunk_frames, int(stop.max_frames))
+    require_chunk_memory(largest_chunk, code, sub_batch=largest_chunk,
+                         extra=_is_extra_bytes(largest_chunk, len(biases)))
     from ..link.channels import ebn0_to_sigma
 
     rate = code.rate

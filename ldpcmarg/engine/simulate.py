@@ -63,6 +63,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .._memory import require_memory
 from ..errors import InputError
 from ..link.channels import make_channel
 from . import stats
@@ -80,6 +81,8 @@ __all__ = [
     "parse_grid",
     "point_key",
     "default_chunk_frames",
+    "chunk_memory_bytes",
+    "require_chunk_memory",
     "info_positions",
     "SNR_KINDS",
 ]
@@ -183,6 +186,53 @@ def info_positions(code) -> np.ndarray:
     mask = np.ones(code.n, dtype=bool)
     mask[piv] = False
     return np.flatnonzero(mask).astype(np.int64)
+
+
+def chunk_memory_bytes(frames: int, n: int, edges: int, *, random_codewords: bool = False,
+                       sub_batch: int | None = None, extra: int = 0) -> int:
+    """Estimated peak memory of one chunk on the process that decodes it, in bytes.
+
+    Parameters
+    ----------
+    frames : int
+        Frames of the chunk.
+    n, edges : int
+        Code length and Tanner-graph edges (``H.nnz``).
+    random_codewords : bool
+        The chunk also holds its codewords and messages (uint8).
+    sub_batch : int, optional
+        Frames decoded at once; default half the chunk, the largest sub-batch
+        :func:`run_chunk` forms (a sub-batch never exceeds the frames done).
+    extra : int
+        Further bytes of the caller (e.g. importance-sampling weights).
+
+    Returns
+    -------
+    int
+        The chunk's LLRs (``frames x n`` float64, and as much again for channel
+        temporaries), codewords when random, and the decoder working set of
+        one sub-batch: an LLR copy and posterior LLRs (float64), hard bits
+        (uint8) and two float64 messages per edge and frame.
+    """
+    F, n, E = int(frames), int(n), int(edges)
+    S = -(-F // 2) if sub_batch is None else int(sub_batch)
+    per_chunk = F * n * 16 + (F * n * 2 if random_codewords else 0)
+    per_batch = S * (n * 17 + 16 * E)
+    return per_chunk + per_batch + int(extra)
+
+
+def require_chunk_memory(frames: int, code, *, random_codewords: bool = False,
+                         sub_batch: int | None = None, extra: int = 0) -> None:
+    """Refuse, with one :class:`~ldpcmarg.errors.ResourceError`, a chunk too large for memory.
+
+    Called by the coordinator before a sweep starts and by :func:`run_chunk`
+    before it draws a chunk's frames, so a huge ``chunk_frames x n`` is one
+    clear error instead of a ``MemoryError`` traceback.
+    """
+    nbytes = chunk_memory_bytes(frames, code.n, code.H.nnz, random_codewords=random_codewords,
+                                sub_batch=sub_batch, extra=extra)
+    require_memory(nbytes, f"A chunk of {int(frames)} frames of a code with n = {code.n} bits",
+                   "give a smaller --chunk-frames (chunk_frames).")
 
 
 def _all_zero_llr(channel, frames: int, n: int, rng: np.random.Generator) -> np.ndarray:
@@ -452,6 +502,7 @@ def run_chunk(ctx: SweepContext, task: ChunkTask) -> ChunkResult:
     code, decs, info, enc = _worker_state(ctx)
     t_start = time.perf_counter()
     n, F = code.n, int(task.frames)
+    require_chunk_memory(F, code, random_codewords=ctx.random_codewords)
     ss = np.random.SeedSequence(entropy=int(ctx.seed), spawn_key=(int(task.point_key),
                                                                   int(task.chunk_index)))
     noise_ss, msg_ss = ss.spawn(2)

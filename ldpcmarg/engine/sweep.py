@@ -321,6 +321,7 @@ class Sweep:
             default_chunk_frames,
             info_positions,
             point_key,
+            require_chunk_memory,
         )
 
         if snr_kind not in SNR_KINDS:
@@ -356,6 +357,7 @@ class Sweep:
                 f"The chunk size must be an integer >= 1 frames; got {chunk_frames!r}.")
         chunk_frames = int(chunk_frames)
         forced = ""
+        largest_chunk = min(chunk_frames, int(stop.max_frames))
         if not random_codewords:
             asym = [d.spec for d in decs if not getattr(d, "symmetric", True)]
             if asym or not channels[0].symmetric:
@@ -364,6 +366,8 @@ class Sweep:
                     "channel not symmetric"
         if random_codewords and getattr(code, "encoder", None) is None:
             raise InputError("Random codewords need an encoder for this code (code.encoder).")
+        # before any store is written or worker started (each worker checks again)
+        require_chunk_memory(largest_chunk, code, random_codewords=bool(random_codewords))
         info = info_positions(code)
         if link is not None and link.rate_matching.shortened.size:
             info = np.setdiff1d(info, link.rate_matching.shortened).astype(np.int64)

@@ -332,12 +332,13 @@ def _shannon_x(kind: str, rate: float) -> float | None:
     return None
 
 
-def _short_code_extras(ax, curves, kind, x_left, x_right, ml_lower_bound, limits, progress):
+def _short_code_extras(ax, curves, kind, x_left, x_right, ml_lower_bound, limits, progress,
+                       styles=None):
     """Hook into :mod:`ldpcmarg.plots.limits` (ML lower bounds, finite-length limits)."""
     from . import limits as extras
 
     if ml_lower_bound:
-        extras.draw_ml_lower_bounds(ax, curves)
+        extras.draw_ml_lower_bounds(ax, curves, styles)
     if limits:
         sizes = [(c.n, c.k) for c in curves if c.n is not None and c.k is not None]
         if not sizes:
@@ -559,7 +560,7 @@ def plot_curves(curves, path=None, *, metrics=("ber", "fer"), thresholds: dict |
         if metric == "fer" and (ml_lower_bound or limits) and kind != "esn0_db":
             # (drawn against Eb/N0 or the BSC/BEC parameter, as the curves carry them)
             _short_code_extras(ax, curves, kind, x_left, x_right, ml_lower_bound, limits,
-                               progress)
+                               progress, styles)
         if metric == "fer" and floors:
             any_untrusted = _floor_extras(ax, floors, styles, kind, one_code, x_left, x_right,
                                           union_bound, curve_labels)
