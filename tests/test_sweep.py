@@ -202,9 +202,11 @@ def test_slow_decoder_ends_within_time_budget_plus_one_frame_cap(hamming74):
     slow = f"fw:gap_tol=0,max_iter=1000000,time_limit={cap}"
     res = simulate(hamming74, [slow, "sum-product"], [1.0], seed=2, chunk_frames=200,
                    stop=StopRule(frame_errors=10**6, max_frames=10**6, time_budget=budget))
-    # timing bound asked for by the stopping rule itself; 1 s of slack covers the
-    # coordinator's 0.25 s polling, the decoders' warm-up and a loaded machine
-    assert res.timing["wall_seconds"] < budget + cap + 1.0
+    # timing bound asked for by the stopping rule itself. 8 s of slack covers the
+    # coordinator's 0.25 s polling, the decoders' warm-up (numba compilation on a
+    # cold cache) and a loaded machine, and still separates the two behaviours
+    # widely: without the cut inside the chunk the run takes about 60 s.
+    assert res.timing["wall_seconds"] < budget + cap + 8.0
     fw, spa = res.points
     for p in (fw, spa):
         assert p.stop == "time_budget" and p.cut_short_chunks == 1 and not p.reproducible
