@@ -13,6 +13,7 @@ Written without reference to the decoders they check:
 from __future__ import annotations
 
 import itertools
+import math
 
 import numpy as np
 
@@ -69,6 +70,21 @@ def exact_posterior_llr(H: np.ndarray, llr: np.ndarray) -> np.ndarray:
         one = cw[:, i] == 1
         out[:, i] = logsumexp(logw[:, ~one], axis=1) - logsumexp(logw[:, one], axis=1)
     return out[0] if np.ndim(llr) == 1 else out
+
+
+def boxplus(values) -> float:
+    """Box-plus ``2 atanh(prod tanh(v/2))`` of LLRs, pairwise in the overflow-free form.
+
+    ``a [+] b = sign(a) sign(b) min(|a|, |b|) + log1p(e^{-|a+b|}) - log1p(e^{-|a-b|})``
+    (Hagenauer, Offer & Papke 1996); plain Python floats, any magnitude.
+    """
+    acc = math.inf
+    for v in values:
+        a, b = acc, float(v)
+        s = math.copysign(1.0, a) * math.copysign(1.0, b)
+        acc = s * min(abs(a), abs(b)) + math.log1p(math.exp(-abs(a + b))) \
+            - math.log1p(math.exp(-abs(a - b))) if math.isfinite(a) else b
+    return acc
 
 
 def random_tree_code(num_checks: int, rng: np.random.Generator, degrees=(2, 3, 4)) -> np.ndarray:

@@ -32,10 +32,11 @@ however reliable the inputs), and the message magnitude is
 ``log((2 - q)/q)``: one ``exp`` and one ``log`` per edge, as the plain
 ``tanh``/``atanh`` form costs, but without its saturation (that form cannot
 send more than ``ln(2**54 - 1) ~ 37.4``, so LLRs on a larger scale stopped
-being corrected). A check with a cavity magnitude above ``_BIG64 = 600``
-(``e^{-|v|}`` leaving the normal range) is computed with the pairwise form
-``min(x, y) - log1p(e^{-|x-y|}) + log1p(e^{-(x+y)})``, exact at every
-magnitude. Channel LLRs are clipped to ``+-LLR_MAX``; messages of degree-1
+being corrected). An extrinsic set whose magnitudes all exceed
+``_BIG64 = 600`` (where ``e^{-|v|}`` leaves the normal range) is computed as
+the shifted log-sum-exp ``-ln sum_j e^{-|v_j|}``, to which the box-plus
+reduces there to rounding: exact at every magnitude. Channel LLRs are
+clipped to ``+-LLR_MAX``; messages of degree-1
 checks (an empty extrinsic product, i.e. certainty) are capped there too.
 All operations act on magnitudes and signs separately, so decoding is exactly
 symmetric under codeword translation (sign flips).
@@ -83,8 +84,8 @@ __all__ = [
 _MODE_SP = 0
 _MODE_MS = 1
 
-#: Cavity magnitude above which a sum-product check switches from the
-#: ``1 - tanh`` form to the pairwise box-plus (:func:`_sp_magnitudes`):
+#: Cavity magnitude above which a sum-product extrinsic set switches from the
+#: ``1 - tanh`` form to a shifted log-sum-exp (:func:`_sp_magnitudes`):
 #: ``e^{-600}`` is still a normal float64, ``e^{-40}`` a normal float32.
 _BIG64 = 600.0
 _BIG32 = 40.0
@@ -141,21 +142,6 @@ def _first_open(L, check_ptr, edge_var, start):
 
 
 @nb.njit(**NUMBA_OPTS)
-def _boxplus_mag(x, y):
-    """Magnitude of the box-plus of two LLRs of magnitudes ``x, y >= 0`` (inf allowed).
-
-    ``|a [+] b| = min(x, y) - log1p(exp(-|x - y|)) + log1p(exp(-(x + y)))``: every
-    term is bounded, so it is exact to rounding at every magnitude and never
-    overflows; ``inf`` is the identity (``x [+] inf = x``).
-    """
-    lo = min(x, y)
-    if lo == np.inf:
-        return np.inf
-    r = lo - math.log1p(math.exp(-abs(x - y))) + math.log1p(math.exp(-(x + y)))
-    return max(r, 0.0)
-
-
-@nb.njit(**NUMBA_OPTS)
 def _sp_magnitudes(vbuf, d, big, cap, tbuf):
     """Extrinsic sum-product message magnitudes of one check.
 
@@ -167,16 +153,29 @@ def _sp_magnitudes(vbuf, d, big, cap, tbuf):
     values with ``q <- q + r - q r``, a sum of positive terms, so ``q`` keeps
     its full relative precision however small it is), the message is
     ``2 atanh(1 - q_k) = log((2 - q_k) / q_k)``: exact to a few ulps in
-    absolute terms, at any magnitude up to ``big``. If some ``|v_j| > big``
-    (where ``e^{-|v|}`` would leave the normal range), the check is computed
-    instead with the pairwise form of :func:`_boxplus_mag` (prefix/suffix),
-    which is exact at every magnitude but costs four transcendental calls per
-    pair.
+    absolute terms whenever the smallest magnitude among the inputs ``j != k``
+    is at most ``big`` (then ``q_k >= r_j`` stays a normal float, and inputs
+    whose ``e^{-|v|}`` leaves the normal range change ``q_k`` by far less than
+    an ulp). When every input of the set ``J = {j != k}`` exceeds ``big``,
+    ``q_k = 2 sum_J e^{-|v_j|} (1 + O(e^{-big}))``, so the message is
+    ``-ln sum_J e^{-|v_j|}``, taken as a log-sum-exp shifted by the smallest
+    magnitude of ``J``: exact to rounding at every magnitude, for about two
+    exponentials and one logarithm per input. (That regime is common: with
+    early stopping off, messages on a loopy graph grow towards ``LLR_MAX``
+    once a frame has converged.)
     """
-    xmax = 0.0
+    min1 = np.inf
+    min2 = np.inf
+    imin = d - d            # an index of d's integer type (d may be uint64)
     for k in range(d):
-        xmax = max(xmax, abs(vbuf[k]))
-    if xmax <= big:
+        x = abs(vbuf[k])
+        if x < min1:
+            min2 = min1
+            min1 = x
+            imin = k
+        elif x < min2:
+            min2 = x
+    if min1 <= big:
         # q = 1 exactly once an input is an erasure (r = 1, tanh = 0): the message
         # is then exactly 0; min(., 1) keeps rounding from pushing q above 1.
         q = 0.0
@@ -198,16 +197,27 @@ def _sp_magnitudes(vbuf, d, big, cap, tbuf):
                 tbuf[k] = cap
             else:
                 tbuf[k] = min(math.log((2.0 - qk) / qk), cap)
-    else:
-        acc = np.inf
+        if min2 <= big:
+            return
+    # from here on the set J = {j != imin} has only magnitudes above big (its
+    # smallest is min2); if min1 > big too, so has every other set (smallest min1)
+    if d == 1:
+        tbuf[0] = cap
+        return
+    s = 0.0
+    for j in range(d):
+        if j != imin:
+            s += math.exp(-(abs(vbuf[j]) - min2))
+    tbuf[imin] = min(min2 - math.log(s), cap)
+    if min1 > big:
+        total = 0.0
+        for j in range(d):
+            total += math.exp(-(abs(vbuf[j]) - min1))     # the term of imin is 1
         for k in range(d):
-            tbuf[k] = acc
-            acc = _boxplus_mag(acc, abs(vbuf[k]))
-        acc = np.inf
-        for kk in range(d):
-            k = d - 1 - kk
-            tbuf[k] = min(_boxplus_mag(tbuf[k], acc), cap)
-            acc = _boxplus_mag(acc, abs(vbuf[k]))
+            if k != imin:
+                # total - own term >= 1: no cancellation
+                rest = total - math.exp(-(abs(vbuf[k]) - min1))
+                tbuf[k] = min(min1 - math.log(rest), cap)
 
 
 @nb.njit(**NUMBA_OPTS)
