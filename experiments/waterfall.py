@@ -15,7 +15,7 @@ and one ``<code>.png`` per code.
 
 Usage::
 
-    python experiments/waterfall.py           # full study (about 15 min on 2 cores)
+    python experiments/waterfall.py           # full study (about 10 min on 2 shared cores)
     python experiments/waterfall.py --quick   # smoke run (about 1 min)
 
 Simulated error rates are statistical estimates on a model channel; see the
@@ -37,6 +37,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 import ldpcmarg as lm  # noqa: E402
 from ldpcmarg.engine.simulate import StopRule, simulate  # noqa: E402
 from ldpcmarg.plots.curves import curves_from_sweep, plot_curves  # noqa: E402
+from ldpcmarg.plots.style import default_title, iteration_cap  # noqa: E402
 
 OUT = Path(__file__).resolve().parent / "results" / "waterfall"
 
@@ -93,6 +94,23 @@ def de_threshold(code, quick: bool) -> float | None:
         return None
 
 
+def figure_title(code, specs) -> str:
+    """Code, n, k, channel and the iteration cap most decoders share; other caps by name.
+
+    The default title lists every decoder's cap when they differ, which is wider
+    than the figure when a group of several decoders shares one cap.
+    """
+    text = default_title([(code.name, code.n, code.k)], "ebn0_db", [])
+    caps = {s: c for s in specs if (c := iteration_cap(s)) is not None}
+    if not caps:
+        return text
+    values = list(caps.values())
+    common = max(set(values), key=values.count)
+    text += f", at most {common} iterations"
+    others = [f"{s.split(':')[0]} {c}" for s, c in caps.items() if c != common]
+    return text + (f" ({', '.join(others)})" if others else "")
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="two codes, two points, few frames")
@@ -132,8 +150,9 @@ def main(argv=None) -> int:
             thr = None
         thresholds = {} if thr is None else {
             f"BP threshold ({'Gaussian approx.' if args.quick else 'density evolution'})": thr}
-        # default title: code, n, k, channel and iteration cap
-        plot_curves(curves, args.out / f"{name}.png", thresholds=thresholds)
+        specs = [s for group, _ in groups for s in group]
+        plot_curves(curves, args.out / f"{name}.png", thresholds=thresholds,
+                    title=figure_title(code, specs))
     with (args.out / "waterfall.csv").open("w", newline="") as fh:
         w = csv.DictWriter(fh, fieldnames=list(rows[0]))
         w.writeheader()
