@@ -163,5 +163,14 @@ def default_title(codes, x_kind: str, decoders) -> str:
     if len(set(caps.values())) == 1:
         text += f", at most {plural(next(iter(caps.values())), 'iteration')}"
     elif caps:
-        text += ", iteration caps " + ", ".join(f"{s} {c}" for s, c in caps.items())
+        # the cap most decoders share, then the others by decoder name (short, so
+        # the title fits the figure); many different caps: their range
+        values = list(caps.values())
+        common = max(values, key=values.count)   # ties: the first decoder's
+        others = {spec.partition(":")[0]: c for spec, c in caps.items() if c != common}
+        if len(others) <= 2:
+            text += f", at most {plural(common, 'iteration')} (" + ", ".join(
+                f"{name} {c}" for name, c in others.items()) + ")"
+        else:
+            text += f", at most {min(values)}-{max(values)} iterations"
     return text
