@@ -167,10 +167,11 @@ def default_title(codes, x_kind: str, decoders) -> str:
         # the title fits the figure); many different caps: their range
         values = list(caps.values())
         common = max(values, key=values.count)   # ties: the first decoder's
-        others = {spec.partition(":")[0]: c for spec, c in caps.items() if c != common}
-        if len(others) <= 2:
+        others = [(spec.partition(":")[0], c) for spec, c in caps.items() if c != common]
+        names = [name for name, _ in others]
+        if len(others) <= 2 and len(set(names)) == len(names):
             text += f", at most {plural(common, 'iteration')} (" + ", ".join(
-                f"{name} {c}" for name, c in others.items()) + ")"
+                f"{name} {c}" for name, c in others) + ")"
         else:
             text += f", at most {min(values)}-{max(values)} iterations"
     return text
