@@ -333,7 +333,7 @@ async def _probe_scheduler(address: str, timeout: float, connection_args: dict) 
 
     from distributed.comm import connect
 
-    async def talk():
+    async def exchange():
         comm = await connect(address, timeout=timeout, **connection_args)
         try:
             await comm.write({"op": "identity", "reply": True})
@@ -341,7 +341,7 @@ async def _probe_scheduler(address: str, timeout: float, connection_args: dict) 
         finally:
             comm.abort()
 
-    return await asyncio.wait_for(talk(), timeout)
+    return await asyncio.wait_for(exchange(), timeout)
 
 
 def _dask_call(func, context, task):
@@ -443,7 +443,7 @@ class DaskExecutor(Executor):
         try:
             reply = asyncio.run(_probe_scheduler(address, timeout,
                                                  security.get_connection_args("client")))
-        except Exception as exc:  # any failure to talk is "not a reachable scheduler"
+        except Exception as exc:  # any failure to exchange messages is "not a reachable scheduler"
             raise ClusterError(
                 f"Cannot reach the Dask scheduler at {address} within {timeout:g} s "
                 f"({type(exc).__name__}); is it running, and is that its address and port "
