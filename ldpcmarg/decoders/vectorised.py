@@ -13,8 +13,9 @@ turns those loops into packed vector instructions (the benchmark notes in
 Kernels
 -------
 * float32/float64 normalised/offset min-sum, flooding and layered;
-* float32/float64 sum-product, flooding and layered, with the exact pairwise
-  box-plus (below);
+* float32/float64 sum-product, flooding and layered, in the complement form
+  of the scalar kernel (one ``exp`` and one ``log`` per edge; see
+  :func:`_sp_update`), exact at every magnitude;
 * fixed-point min-sum (offset or normalised) in the shared integer format
   (int8 messages, int16 posteriors, int32 accumulation; see
   :func:`decode_fixed_point_lanes`), flooding and layered.
@@ -24,9 +25,11 @@ count as the scalar decoders) and is refilled at once with the next frame of
 its chunk, so a lane group is never held back by its slowest frame. Chunks of
 frames run in parallel (``numba.prange``), each owning its buffers.
 
-Exact box-plus
---------------
-For magnitudes ``x, y >= 0`` of two messages,
+Polynomial exp/log, and the pairwise box-plus
+---------------------------------------------
+The check update itself is described at :func:`_sp_update`. The pairwise
+box-plus below is kept as a tested reference of the lane arithmetic: for
+magnitudes ``x, y >= 0`` of two messages,
 ``|a [+] b| = min(x, y) + log1p(exp(-(x + y))) - log1p(exp(-|x - y|))``
 (the sign is the product of the signs). Both correction terms lie in
 ``[0, ln 2]``, so nothing overflows and nothing saturates at any magnitude;
@@ -44,6 +47,9 @@ written out in plain arithmetic that vectorises:
   ``1e-304`` resp. ``2e-35`` -- so that no subnormal number is ever formed
   (each costs a microcode assist of ~100 cycles, measured as a tenfold slow
   down of the whole check update).
+* ``log(y)``, ``y`` positive and normal: exponent and mantissa from the bits,
+  mantissa ``m`` in ``[sqrt(1/2), sqrt(2))``, ``log m = 2 atanh((m-1)/(m+1))``
+  by the series below, plus ``e ln 2`` (``ln 2`` split in two parts).
 * ``log1p(u)``, ``0 <= u <= 1``: for ``u > sqrt(2) - 1`` write
   ``1 + u = 2 (1 + (u - 1)/2)``; then ``log(1 + g) = 2 atanh(g / (2 + g))`` by
   its Taylor series (``|s| <= 0.1716``; 11 terms in float64, 6 in float32).
@@ -58,8 +64,20 @@ Arithmetic against the scalar path
 * float32 min-sum: the scalar kernel mixes float64 constants into float32
   messages (double rounding); the lanes stay in float32, so results differ
   slightly and only the error rates agree statistically.
-* sum-product: the exact box-plus above, not the scalar kernel's formula, so
-  posteriors agree to rounding error wherever the scalar box-plus is exact.
+* sum-product: the scalar kernel's complement form with polynomial exp/log
+  (and a per-lane shift instead of the scalar pairwise fallback at large
+  magnitudes), so posteriors agree to rounding error, not bit for bit.
+
+What kept the lanes scalar (found in the LLVM IR and the loop-vectorize
+debug output, ``llvm.set_option("", "-debug-only=loop-vectorize")``):
+a signed index (``range(1, d - 1)`` with an unsigned ``d``) brings numba's
+negative-index wraparound select, which LLVM turns into gathers; a numba
+helper that can set an exception status is called, not inlined, at the time
+the vectoriser runs ("call instruction cannot be vectorized"), so every
+helper in the lane loops is ``inline="always"``; a load inside one arm of a
+conditional expression and a short-circuit ``and``/``or`` become branches
+(written as selects of values computed first, and bitwise ``&``/``|``); and a
+loop that combined prefix and suffix in place stayed scalar without any remark.
 """
 
 from __future__ import annotations
