@@ -160,6 +160,8 @@ def test_auto_dispatch_and_errors(code96):
     llr = _awgn(code96, F_ODD, 2.0, 61)
     auto = lm.make_decoder("min-sum", code96, alpha=0.75)          # kernel="auto"
     assert auto._use_lanes(F_ODD, 0.0) and not auto._use_lanes(V.LANES - 1, 0.0)
+    sp = lm.make_decoder("sum-product", code96)
+    assert sp._use_lanes(F_ODD, 0.0) and not sp._use_lanes(V.LANES - 1, 0.0)
     damped = lm.make_decoder("min-sum", code96, damping=0.1)
     assert not damped._use_lanes(F_ODD, 0.0)
     np.testing.assert_array_equal(
