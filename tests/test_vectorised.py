@@ -160,6 +160,8 @@ def test_auto_dispatch_and_errors(code96):
     llr = _awgn(code96, F_ODD, 2.0, 61)
     auto = lm.make_decoder("min-sum", code96, alpha=0.75)          # kernel="auto"
     assert auto._use_lanes(F_ODD, 0.0) and not auto._use_lanes(V.LANES - 1, 0.0)
+    sp = lm.make_decoder("sum-product", code96)
+    assert sp._use_lanes(F_ODD, 0.0) and not sp._use_lanes(V.LANES - 1, 0.0)
     damped = lm.make_decoder("min-sum", code96, damping=0.1)
     assert not damped._use_lanes(F_ODD, 0.0)
     np.testing.assert_array_equal(
@@ -259,3 +261,34 @@ def test_quantiser_rounds_half_to_even_and_saturates():
     # numpy rint is round-half-to-even (IEEE 754 default rounding)
     q = V.quantise_llr(np.array([0.25, 0.75, -0.25, 100.0, -100.0, 0.0]), q=4, step=0.5)
     assert q.tolist() == [0, 2, 0, 7, -7, 0]
+
+
+@pytest.mark.parametrize("scale", [30.0, 1000.0])
+@pytest.mark.parametrize("precision,tol", [("float64", 1e-9), ("float32", 1e-4)])
+def test_sum_product_lanes_exact_at_large_magnitudes(scale, precision, tol, code96):
+    # Scaled LLRs drive cavity magnitudes far past the range where e^{-|v|} is a
+    # normal number (the lanes' per-lane shift and the scalar pairwise fallback
+    # take over); both are exact box-plus implementations, so the posteriors
+    # agree to rounding relative to their size (common practice: BP messages
+    # are bounded by the smallest extrinsic magnitude).
+    llr = _awgn(code96, F_ODD, 1.0, 12) * scale
+    post, _, _ = V.decode_float_lanes(code96, llr, mode="sum-product", max_iter=3,
+                                      early_stop=False, precision=precision)
+    ref = lm.make_decoder("sum-product", code96, max_iter=3, early_stop=False,
+                          kernel="scalar").decode(llr).posterior_llr
+    rel = np.abs(post - ref) / np.maximum(np.abs(ref), 1.0)
+    assert np.max(rel) < tol
+
+
+def test_sum_product_lanes_erasures_send_exact_zeros():
+    # An erased input (LLR 0) makes every other message of its check exactly 0
+    # (tanh(0) = 0 in the product; common practice).
+    code = ParityCheckCode(np.ones((1, 4), dtype=np.uint8))
+    llr = np.tile(np.array([0.0, 2.0, -3.0, 50.0]), (V.LANES + 3, 1))
+    post, _, _ = V.decode_float_lanes(code, llr, mode="sum-product", max_iter=1,
+                                      early_stop=False)
+    assert np.all(post[:, 1:] == llr[:, 1:])
+    # the erased bit gets 2 [+] -3 [+] 50 (pairwise, numpy reference)
+    def bp(x, y):
+        return 2 * np.arctanh(np.tanh(x / 2) * np.tanh(y / 2))
+    assert np.allclose(post[:, 0], bp(bp(2.0, -3.0), 50.0), rtol=1e-12)

@@ -53,10 +53,10 @@ Performance notes
 * float32 messages (option ``precision``) gave no speed-up on the machine
   measured in these scalar kernels.
 * Option ``kernel`` (``auto`` by default): batches of at least 64 undamped
-  min-sum frames go to the frame-interleaved SIMD kernels of
-  :mod:`ldpcmarg.decoders.vectorised` (identical results in float64; float32
-  differs by rounding only); ``kernel="lanes"`` also sends sum-product there
-  (exact box-plus, see that module). Figures:
+  frames (min-sum and sum-product) go to the frame-interleaved SIMD kernels of
+  :mod:`ldpcmarg.decoders.vectorised` (min-sum identical in float64, float32
+  differs by rounding only; sum-product agrees to rounding: same complement
+  form, polynomial exp/log). Figures:
   ``experiments/bench_message_passing.py``.
 """
 
@@ -582,8 +582,8 @@ def _kernel_param() -> dict[str, Param]:
     return {"kernel": Param("choice", "auto", choices=("auto", "scalar", "lanes"),
                             doc="'lanes': frame-interleaved SIMD kernels "
                                 "(ldpcmarg.decoders.vectorised); 'scalar': one frame at a "
-                                "time; 'auto': lanes for min-sum batches of at least 64 "
-                                "undamped frames, scalar otherwise")}
+                                "time; 'auto': lanes for batches of at least 64 undamped "
+                                "frames, scalar otherwise")}
 
 
 def _common_params(damping_default: float = 0.0) -> dict[str, Param]:
@@ -656,8 +656,9 @@ class _MessagePassing(Decoder):
             return True
         from .vectorised import LANES
 
-        # sum-product lanes measured slower than the scalar kernel (bench notes)
-        return fits and self._mode == _MODE_MS and F >= LANES
+        # min-sum and sum-product lanes both measured faster than the scalar
+        # kernels on full lane groups (experiments/results/bench_message_passing.md)
+        return fits and F >= LANES
 
     def _run(self, llr: np.ndarray, *, max_iter: int, early_stop: bool, tol: float):
         """Run the kernel on (F, n) float64 LLRs; returns (post, iters, valid, stopped)."""

@@ -13,8 +13,9 @@ turns those loops into packed vector instructions (the benchmark notes in
 Kernels
 -------
 * float32/float64 normalised/offset min-sum, flooding and layered;
-* float32/float64 sum-product, flooding and layered, with the exact pairwise
-  box-plus (below);
+* float32/float64 sum-product, flooding and layered, in the complement form
+  of the scalar kernel (one ``exp`` and one ``log`` per edge; see
+  :func:`_sp_update`), exact at every magnitude;
 * fixed-point min-sum (offset or normalised) in the shared integer format
   (int8 messages, int16 posteriors, int32 accumulation; see
   :func:`decode_fixed_point_lanes`), flooding and layered.
@@ -24,9 +25,11 @@ count as the scalar decoders) and is refilled at once with the next frame of
 its chunk, so a lane group is never held back by its slowest frame. Chunks of
 frames run in parallel (``numba.prange``), each owning its buffers.
 
-Exact box-plus
---------------
-For magnitudes ``x, y >= 0`` of two messages,
+Polynomial exp/log, and the pairwise box-plus
+---------------------------------------------
+The check update itself is described at :func:`_sp_update`. The pairwise
+box-plus below is kept as a tested reference of the lane arithmetic: for
+magnitudes ``x, y >= 0`` of two messages,
 ``|a [+] b| = min(x, y) + log1p(exp(-(x + y))) - log1p(exp(-|x - y|))``
 (the sign is the product of the signs). Both correction terms lie in
 ``[0, ln 2]``, so nothing overflows and nothing saturates at any magnitude;
@@ -44,6 +47,9 @@ written out in plain arithmetic that vectorises:
   ``1e-304`` resp. ``2e-35`` -- so that no subnormal number is ever formed
   (each costs a microcode assist of ~100 cycles, measured as a tenfold slow
   down of the whole check update).
+* ``log(y)``, ``y`` positive and normal: exponent and mantissa from the bits,
+  mantissa ``m`` in ``[sqrt(1/2), sqrt(2))``, ``log m = 2 atanh((m-1)/(m+1))``
+  by the series below, plus ``e ln 2`` (``ln 2`` split in two parts).
 * ``log1p(u)``, ``0 <= u <= 1``: for ``u > sqrt(2) - 1`` write
   ``1 + u = 2 (1 + (u - 1)/2)``; then ``log(1 + g) = 2 atanh(g / (2 + g))`` by
   its Taylor series (``|s| <= 0.1716``; 11 terms in float64, 6 in float32).
@@ -58,12 +64,24 @@ Arithmetic against the scalar path
 * float32 min-sum: the scalar kernel mixes float64 constants into float32
   messages (double rounding); the lanes stay in float32, so results differ
   slightly and only the error rates agree statistically.
-* sum-product: the exact box-plus above, not the scalar kernel's formula, so
-  posteriors agree to rounding error wherever the scalar box-plus is exact.
+* sum-product: the scalar kernel's complement form with polynomial exp/log
+  (and a per-lane shift instead of the scalar pairwise fallback at large
+  magnitudes), so posteriors agree to rounding error, not bit for bit.
 * fixed point: integer arithmetic, the same quantiser and alpha rounding as
   :mod:`ldpcmarg.decoders.fixed_point`, so posterior registers, iterations
   and validity equal the scalar fixed-point kernels bit for bit (tested for
   all four decoders, q = 3 ... 8); reached through their ``kernel`` option.
+
+What kept the lanes scalar (found in the LLVM IR and the loop-vectorize
+debug output, ``llvm.set_option("", "-debug-only=loop-vectorize")``):
+a signed index (``range(1, d - 1)`` with an unsigned ``d``) brings numba's
+negative-index wraparound select, which LLVM turns into gathers; a numba
+helper that can set an exception status is called, not inlined, at the time
+the vectoriser runs ("call instruction cannot be vectorized"), so every
+helper in the lane loops is ``inline="always"``; a load inside one arm of a
+conditional expression and a short-circuit ``and``/``or`` become branches
+(written as selects of values computed first, and bitwise ``&``/``|``); and a
+loop that combined prefix and suffix in place stayed scalar without any remark.
 """
 
 from __future__ import annotations
@@ -96,6 +114,7 @@ __all__ = [
     "decode_fixed_point_levels_lanes",
     "exp_neg_lanes",
     "log1p_unit_lanes",
+    "log_lanes",
     "boxplus_lanes",
 ]
 
@@ -133,12 +152,14 @@ _LN2_HI, _LN2_LO = _ln2_split()
 _LN2 = math.log(2.0)
 _LOG2E = 1.0 / _LN2
 _SQRT2M1 = math.sqrt(2.0) - 1.0
+_SQRT2 = math.sqrt(2.0)
 _F32 = np.float32
 _LN2_HI32 = _F32(0.693145751953125)          # 16 significant bits: k * hi exact
 _LN2_LO32 = _F32(math.log(2.0) - 0.693145751953125)
 _LN2_32 = _F32(_LN2)
 _LOG2E32 = _F32(_LOG2E)
 _SQRT2M1_32 = _F32(_SQRT2M1)
+_SQRT2_32 = _F32(_SQRT2)
 
 
 # --------------------------------------------------------------- bit casts
@@ -159,6 +180,26 @@ def _i32_as_f32(typingctx, x):
 
     def codegen(context, builder, signature, args):
         return builder.bitcast(args[0], context.get_value_type(nbt.float32))
+    return sig, codegen
+
+
+@intrinsic
+def _f64_as_i64(typingctx, x):
+    """Reinterpret the bits of a float64 as an int64."""
+    sig = nbt.int64(nbt.float64)
+
+    def codegen(context, builder, signature, args):
+        return builder.bitcast(args[0], context.get_value_type(nbt.int64))
+    return sig, codegen
+
+
+@intrinsic
+def _f32_as_i32(typingctx, x):
+    """Reinterpret the bits of a float32 as an int32."""
+    sig = nbt.int32(nbt.float32)
+
+    def codegen(context, builder, signature, args):
+        return builder.bitcast(args[0], context.get_value_type(nbt.int32))
     return sig, codegen
 
 
@@ -254,6 +295,76 @@ def _log1p_unit32(u):
     return res + _LN2_32 if big else res
 
 
+@nb.njit(inline="always", **_SP_OPTS)
+def _log_pos64(y):
+    """``log(y)`` for a positive normal float64 ``y`` (see module docstring)."""
+    bits = _f64_as_i64(y)
+    ex = (bits >> np.int64(52)) - np.int64(1023)
+    m = _i64_as_f64((bits & np.int64(0xFFFFFFFFFFFFF)) | np.int64(0x3FF0000000000000))
+    big = m > _SQRT2
+    m = m * 0.5 if big else m
+    k = np.float64(ex) + (1.0 if big else 0.0)
+    f = m - 1.0
+    s = f / (2.0 + f)
+    z = s * s
+    p = 1.0 / 21.0
+    p = p * z + 1.0 / 19.0
+    p = p * z + 1.0 / 17.0
+    p = p * z + 1.0 / 15.0
+    p = p * z + 1.0 / 13.0
+    p = p * z + 1.0 / 11.0
+    p = p * z + 1.0 / 9.0
+    p = p * z + 1.0 / 7.0
+    p = p * z + 1.0 / 5.0
+    p = p * z + 1.0 / 3.0
+    p = p * z + 1.0
+    return k * _LN2_HI + (2.0 * s * p + k * _LN2_LO)
+
+
+@nb.njit(inline="always", **_SP_OPTS)
+def _log_pos32(y):
+    """``log(y)`` for a positive normal float32 ``y``."""
+    bits = _f32_as_i32(y)
+    ex = (bits >> np.int32(23)) - np.int32(127)
+    m = _i32_as_f32((bits & np.int32(0x7FFFFF)) | np.int32(0x3F800000))
+    big = m > _SQRT2_32
+    m = m * _F32(0.5) if big else m
+    k = _F32(ex) + (_F32(1.0) if big else _F32(0.0))
+    f = m - _F32(1.0)
+    s = f / (_F32(2.0) + f)
+    z = s * s
+    p = _F32(1.0 / 11.0)
+    p = p * z + _F32(1.0 / 9.0)
+    p = p * z + _F32(1.0 / 7.0)
+    p = p * z + _F32(1.0 / 5.0)
+    p = p * z + _F32(1.0 / 3.0)
+    p = p * z + _F32(1.0)
+    return k * _LN2_HI32 + (_F32(2.0) * s * p + k * _LN2_LO32)
+
+
+def _log_pos(y):  # pragma: no cover - replaced by the overload below
+    raise NotImplementedError
+
+
+def _sp_limits(cap):  # pragma: no cover - replaced by the overload below
+    raise NotImplementedError
+
+
+@overload(_log_pos, jit_options=_SP_OPTS, inline="always")
+def _log_pos_impl(y):
+    if y == nbt.float32:
+        return lambda y: _log_pos32(y)
+    return lambda y: _log_pos64(y)
+
+
+@overload(_sp_limits, inline="always")
+def _sp_limits_impl(cap):
+    """``(BIG, GAP, CLAMP)`` of the sum-product check update for the type of ``cap``."""
+    if cap == nbt.float32:
+        return lambda cap: (_F32(60.0), _F32(20.0), _F32(20.0))
+    return lambda cap: (600.0, 40.0, 40.0)
+
+
 def _exp_neg(t):  # pragma: no cover - replaced by the overload below
     raise NotImplementedError
 
@@ -311,6 +422,12 @@ def _map_log1p(u, out):
 
 
 @nb.njit(**_SP_OPTS)
+def _map_log(y, out):
+    for j in range(y.shape[0]):
+        out[j] = _log_pos(y[j])
+
+
+@nb.njit(**_SP_OPTS)
 def _map_boxplus(x, y, out):
     for j in range(x.shape[0]):
         out[j] = _boxplus_mag(x[j], y[j])
@@ -329,6 +446,14 @@ def log1p_unit_lanes(u: np.ndarray) -> np.ndarray:
     u = np.ascontiguousarray(u).ravel()
     out = np.empty_like(u)
     _map_log1p(u, out)
+    return out
+
+
+def log_lanes(y: np.ndarray) -> np.ndarray:
+    """``log(y)`` for positive normal ``y`` as computed inside the lane kernels."""
+    y = np.ascontiguousarray(y).ravel()
+    out = np.empty_like(y)
+    _map_log(y, out)
     return out
 
 
@@ -420,22 +545,66 @@ def _ms_write(dst, c2v, edge_var, a, d, alpha, beta, cap, vb, st, layered):
                 dst[bi + w] += out
 
 
-@nb.njit(**_SP_OPTS)
-def _sp_update(src, dst, c2v, edge_var, a, d, cap, vb, xb, fb, st, sg, run, layered):
-    """Sum-product update of one check: cavity values, syndrome counts and new messages.
+@nb.njit(inline="always", **_SP_OPTS)
+def _sp_combine(q, r, eps, qcap):
+    """``q [+] r`` of two complements, ``q + r - eps q r`` (see :func:`_sp_update`).
 
-    Pass 1 as :func:`_ms_read` (magnitudes into ``xb``, signs into ``sg``);
-    forward partial sums ``fb[k] = x_0 [+] ... [+] x_k``; backward sweep with
-    the running suffix in ``run``; magnitudes capped at ``cap`` (a degree-1
-    check sends ``cap``). Each sweep keeps its running value in ``run`` rather
-    than reading the previous row of ``fb``, which LLVM did not vectorise.
-    Finally ``dst`` is updated as in :func:`_ms_write`.
+    ``qcap = 1`` in unshifted lanes: a complement of 1 (an erasure) absorbs
+    everything exactly; ``qcap = inf`` in shifted lanes (no erasures there).
+    """
+    # bitwise | and a select of computed values: a short-circuit `or` became a
+    # branch that kept the backward sweep scalar
+    full = (q >= qcap) | (r >= qcap)
+    val = min(q + r - eps * q * r, qcap)
+    return qcap if full else val
+
+
+@nb.njit(**_SP_OPTS)
+def _sp_update(src, dst, c2v, edge_var, a, d, cap, vb, xb, fb, bb, st, sg, layered):
+    """Sum-product update of one check in the complement form, all lanes at once.
+
+    For cavity magnitudes ``x_j`` write ``u_j = e^{-x_j}``,
+    ``r_j = 1 - tanh(x_j/2) = 2 u_j/(1 + u_j)`` and, for edge ``k``, the complement
+    ``q_k = 1 - prod_{j != k} tanh(x_j/2)``, built from prefix and suffix values
+    with ``q [+] r = q + r - q r`` (a sum of non-negative terms: no
+    cancellation); the message magnitude is ``log((2 - q_k)/q_k)``. That is
+    the scalar kernel's form (one ``exp`` and one ``log`` per edge), here with
+    the polynomial ``exp``/``log`` of this module.
+
+    Large magnitudes, per lane, without branches: let ``m1 <= m2`` be the two
+    smallest ``x_j``. Every ``q_k`` is at least about ``e^{-m2}``, so when
+    ``m2 <= BIG`` (600 in float64, 60 in float32) terms flushed to 0 (``x_j``
+    beyond 700 resp. 80) change ``q_k`` by a relative ``d e^{-100}`` resp.
+    ``d e^{-20}``, below rounding. Otherwise the lane is shifted by
+    ``S = m2 - BIG``: ``u_j = e^{-S} e^{-(x_j - S)}``, and with ``eps = e^{-S}``
+    the same recursion holds exactly for ``q~ = q / eps``, ``r~ = r / eps``:
+    ``r~ = 2 u~/(1 + eps u~)``, ``q~ [+] r~ = q~ + r~ - eps q~ r~``,
+    ``|msg| = S + log((2 - eps q~)/q~)``. If moreover ``m2 - m1 > GAP`` (40
+    resp. 20), ``e^{-(x_j - S)}`` of the smallest input could overflow, so it
+    is clamped; then only the message to that smallest edge is taken from the
+    recursion (it excludes the clamped term) and every other edge receives
+    ``m1``, which is exact up to ``d e^{-GAP}`` (``1e-16`` resp. ``1e-8``,
+    absolute). Erased inputs (``x = 0``, ``r = 1``) give ``q = 1`` and exactly
+    0 messages; a degree-1 check (empty product) sends ``cap``.
+
+    Per-lane state in ``st`` (rows of ``W``): 0 ``m1``, 1 ``m2``, 2 index of
+    ``m1``, 3 ``S``, 4/5 syndrome counts (as :func:`_ms_read`), 6 ``eps``,
+    7 ``qcap``, 8 split flag, 9 running suffix. ``xb`` holds ``x`` then
+    ``r~``, ``fb`` and ``bb`` the prefix and suffix complements. Every index is unsigned (a signed
+    index brings numba's negative-index test, which LLVM turned into gathers).
     """
     W = np.uint64(LANES)
+    u1 = np.uint64(1)
+    big, gap, clamp = _sp_limits(cap)
     zero = src.dtype.type(0.0)
     one = src.dtype.type(1.0)
+    two = src.dtype.type(2.0)
+    inf = src.dtype.type(np.inf)
     for w in range(W):
         sg[w] = one
+        st[w] = inf
+        st[W + w] = inf
+        st[2 * W + w] = zero
         st[4 * W + w] = zero
         st[5 * W + w] = zero
     for k in range(d):
@@ -443,47 +612,69 @@ def _sp_update(src, dst, c2v, edge_var, a, d, cap, vb, xb, fb, st, sg, run, laye
         bi = edge_var[e] * W
         be = e * W
         bk = k * W
+        kf = src.dtype.type(k)
         for w in range(W):
             p = src[bi + w]
             v = p - c2v[be + w]
             vb[bk + w] = v
             sg[w] *= math.copysign(one, v)
-            xb[bk + w] = abs(v)
+            x = abs(v)
+            xb[bk + w] = x
+            lo = st[w]
+            st[W + w] = min(st[W + w], max(lo, x))
+            st[2 * W + w] = kf if x < lo else st[2 * W + w]
+            st[w] = min(lo, x)
             st[4 * W + w] += one if p < zero else zero
             st[5 * W + w] += one if p == zero else zero
-    if d == 1:
+    for w in range(W):
+        m2 = st[W + w]
+        sh = max(m2 - big, zero)
+        sh = sh if sh < inf else zero      # m2 = inf: degree 1, nothing to shift
+        st[3 * W + w] = sh
+        st[6 * W + w] = _exp_neg(sh)
+        st[7 * W + w] = one if sh == zero else inf
+        st[8 * W + w] = one if ((sh > zero) & (m2 - st[w] > gap)) else zero
+        st[9 * W + w] = zero
+    if d == u1:
+        # empty extrinsic product: certainty, sent as cap
         for w in range(W):
             c2v[a * W + w] = cap * sg[w] * math.copysign(one, vb[w])
-    else:
+    # forward: prefix complements into fb, r~ into xb
+    for k in range(d):
+        bk = k * W
         for w in range(W):
-            run[w] = xb[w]
-            fb[w] = xb[w]
-        for k in range(1, d - 1):
-            bk = k * W
-            for w in range(W):
-                r = _boxplus_mag(run[w], xb[bk + w])
-                run[w] = r
-                fb[bk + w] = r
-        # last edge: extrinsic = forward sum of the others
-        bl = (d - 1) * W
-        be = (a + d - 1) * W
+            eps = st[6 * W + w]
+            uu = _exp_neg(max(xb[bk + w] - st[3 * W + w], -clamp))
+            r = (two * uu) / (one + eps * uu)
+            q = st[9 * W + w]
+            fb[bk + w] = q
+            xb[bk + w] = r
+            st[9 * W + w] = _sp_combine(q, r, eps, st[7 * W + w])
+    # backward: suffix complements into bb (the forward loop's shape; a backward
+    # loop that also combined prefix and suffix stayed scalar), then messages
+    for w in range(W):
+        st[9 * W + w] = zero
+    for kk in range(d):
+        k = d - u1 - kk
+        bk = k * W
         for w in range(W):
-            mag = min(run[w], cap)
-            run[w] = xb[bl + w]
-            c2v[be + w] = mag * sg[w] * math.copysign(one, vb[bl + w])
-        for kr in range(np.int64(d) - 2, 0, -1):
-            k = np.uint64(kr)
-            bk = k * W
-            bp = (k - 1) * W
-            be = (a + k) * W
-            # two loops with one box-plus each: the fused loop ran 1.6x slower
-            for w in range(W):
-                mag = min(_boxplus_mag(fb[bp + w], run[w]), cap)
-                c2v[be + w] = mag * sg[w] * math.copysign(one, vb[bk + w])
-            for w in range(W):
-                run[w] = _boxplus_mag(xb[bk + w], run[w])
+            q = st[9 * W + w]
+            bb[bk + w] = q
+            st[9 * W + w] = _sp_combine(q, xb[bk + w], st[6 * W + w], st[7 * W + w])
+    for k in range(d if d > u1 else np.uint64(0)):
+        bk = k * W
+        be = (a + k) * W
+        kf = src.dtype.type(k)
         for w in range(W):
-            c2v[a * W + w] = min(run[w], cap) * sg[w] * math.copysign(one, vb[w])
+            eps = st[6 * W + w]
+            qk = _sp_combine(fb[bk + w], bb[bk + w], eps, st[7 * W + w])
+            mag = min(st[3 * W + w] + _log_pos((two - eps * qk) / qk), cap)
+            # both sides computed first: a load inside the conditional arm kept
+            # the loop scalar (LLVM does not speculate the load)
+            m1c = min(st[w], cap)
+            other = (st[8 * W + w] > zero) & (st[2 * W + w] != kf)
+            mag = m1c if other else mag
+            c2v[be + w] = mag * sg[w] * math.copysign(one, vb[bk + w])
     for k in range(d):
         e = a + k
         bi = edge_var[e] * W
@@ -628,9 +819,9 @@ def _float_group(frames, llr, check_ptr, edge_var, mode, layered, alpha, beta, m
     vb = np.zeros(dmax * W, dtype=dt)
     xb = np.zeros(dmax * W, dtype=dt)
     fb = np.zeros(dmax * W, dtype=dt)
-    st = np.zeros(6 * W, dtype=dt)
+    bb = np.zeros(dmax * W, dtype=dt)
+    st = np.zeros(10 * W, dtype=dt)
     sg = np.zeros(W, dtype=dt)
-    run = np.zeros(W, dtype=dt)
     open_ = np.zeros(W, dtype=np.bool_)
     bad = np.zeros(W, dtype=np.bool_)
     cont = np.zeros(W, dtype=np.bool_)
@@ -654,8 +845,7 @@ def _float_group(frames, llr, check_ptr, edge_var, mode, layered, alpha, beta, m
                     _ms_read(L, c2v, edge_var, a, d, vb, st)
                     _ms_write(L, c2v, edge_var, a, d, al, be_, cap, vb, st, True)
                 else:
-                    _sp_update(L, L, c2v, edge_var, a, d, cap, vb, xb, fb, st, sg, run,
-                               True)
+                    _sp_update(L, L, c2v, edge_var, a, d, cap, vb, xb, fb, bb, st, sg, True)
             for w in range(W):
                 it[w] += 1
         else:
@@ -671,8 +861,7 @@ def _float_group(frames, llr, check_ptr, edge_var, mode, layered, alpha, beta, m
                     _ms_read(L, c2v, edge_var, a, d, vb, st)
                     _ms_write(Lnew, c2v, edge_var, a, d, al, be_, cap, vb, st, False)
                 else:
-                    _sp_update(L, Lnew, c2v, edge_var, a, d, cap, vb, xb, fb, st, sg, run,
-                               False)
+                    _sp_update(L, Lnew, c2v, edge_var, a, d, cap, vb, xb, fb, bb, st, sg, False)
                 _syndrome_add(st, open_, bad)
             pos = _retire_and_refill(frames, pos, lane_frame, it, open_, bad, early_stop,
                                      max_iter, llr, chan, L, c2v, n, E, big, 1.0, post, iters,
