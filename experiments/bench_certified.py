@@ -256,9 +256,11 @@ def main(argv=None):
     results = {
         "machine": {"python": platform.python_version(), "cpu": platform.processor(),
                     "cores": os.cpu_count(), "node": platform.machine()},
-        "note": ("Shared 2-core machine under load from other jobs; both sides measured "
+        "note": (f"{args.frames} frames per point (sum-product with the registry defaults, "
+                 "i.e. the lane kernels for batches of 64 or more); both sides measured "
                  "interleaved in the same process with the same numba thread count. "
-                 "Times are wall-clock medians per frame."),
+                 "Times are wall-clock medians per frame. Load average at the start: "
+                 f"{' '.join(f'{v:.2f}' for v in os.getloadavg())} (2 cores)."),
         "rel_gap": REL_GAP, "frames": args.frames, "runs": runs,
     }
     out = Path(args.out)
