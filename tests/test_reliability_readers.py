@@ -18,6 +18,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 import scipy.sparse as sp
+from cli_helpers import assert_clean_error
 
 from ldpcmarg.code.io import load_code
 from ldpcmarg.errors import CodeFileError, InputError, LdpcmargError, ResourceError
@@ -35,15 +36,6 @@ def cli(args, cwd, timeout=60, address_space=None, env=None):
     return subprocess.run([sys.executable, "-m", "ldpcmarg", *map(str, args)], cwd=cwd,
                           env={**ENV, **(env or {})}, capture_output=True, text=True,
                           timeout=timeout, preexec_fn=limit)
-
-
-def assert_clean_error(done, *fragments):
-    assert done.returncode == 2, (done.returncode, done.stderr[-2000:])
-    assert "Traceback" not in done.stderr, done.stderr[-2000:]
-    lines = [ln for ln in done.stderr.splitlines() if ln.strip()]
-    assert len(lines) == 1 and lines[0].startswith("Error: "), done.stderr[-2000:]
-    for f in fragments:
-        assert f.lower() in lines[0].lower(), (f, lines[0])
 
 
 def npy_bytes(arr) -> bytes:

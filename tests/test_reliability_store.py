@@ -19,6 +19,7 @@ import sys
 from pathlib import Path
 
 import pytest
+from cli_helpers import assert_clean_error
 
 from ldpcmarg.engine.store import Store
 from ldpcmarg.errors import StoreError
@@ -37,15 +38,6 @@ def cli(args, cwd, timeout=120, file_size=None):
     return subprocess.run([sys.executable, "-m", "ldpcmarg", *map(str, args)], cwd=cwd,
                           env=ENV, capture_output=True, text=True, timeout=timeout,
                           preexec_fn=limit)
-
-
-def assert_clean_error(done, *fragments):
-    assert done.returncode == 2, (done.returncode, done.stderr[-2000:])
-    assert "Traceback" not in done.stderr, done.stderr[-2000:]
-    lines = [ln for ln in done.stderr.splitlines() if ln.strip()]
-    assert len(lines) == 1 and lines[0].startswith("Error: "), done.stderr[-2000:]
-    for f in fragments:
-        assert f.lower() in lines[0].lower(), (f, lines[0])
 
 
 def chunk_rows(path) -> list:
