@@ -898,6 +898,7 @@ def _fx_update(src, dst, c2v, edge_var, a, d, kind, factor, qmax, pmax, vb, st, 
     in :func:`_ms_read` (sign parity instead of sign product).
     """
     W = np.uint64(LANES)
+    nqmax = np.int32(-qmax)
     for w in range(W):
         st[w] = 0
         st[W + w] = qmax
@@ -913,8 +914,8 @@ def _fx_update(src, dst, c2v, edge_var, a, d, kind, factor, qmax, pmax, vb, st, 
         kk = np.int32(k)
         for w in range(W):
             p = src[bi + w]
-            v = np.int32(p) - np.int32(c2v[be + w])
-            v = np.int32(min(max(v, -qmax), qmax))
+            v = np.int32(np.int32(p) - np.int32(c2v[be + w]))
+            v = min(max(v, nqmax), qmax)
             vb[bk + w] = v
             st[w] ^= np.int32(1) if v < 0 else np.int32(0)
             x = np.int32(abs(v))
@@ -924,14 +925,21 @@ def _fx_update(src, dst, c2v, edge_var, a, d, kind, factor, qmax, pmax, vb, st, 
             st[W + w] = min(lo, x)
             st[4 * W + w] += np.int32(1) if p < 0 else np.int32(0)
             st[5 * W + w] += np.int32(1) if p == 0 else np.int32(0)
+    # numba widens int32 arithmetic to int64; the np.int32(...) after each step
+    # (exact: |values| <= 16 * 127 + 8) lets LLVM keep 32-bit lanes (16 per zmm
+    # register instead of 8, and no 64-bit vpmullq in the second pass)
+    zero32 = np.int32(0)
+    eight = np.int32(8)
+    four = np.int32(4)
     if kind == FIXED_OFFSET:
         for w in range(W):
-            st[W + w] = max(st[W + w] - factor, 0)
-            st[2 * W + w] = max(st[2 * W + w] - factor, 0)
+            st[W + w] = max(np.int32(st[W + w] - factor), zero32)
+            st[2 * W + w] = max(np.int32(st[2 * W + w] - factor), zero32)
     else:
         for w in range(W):
-            st[W + w] = (factor * st[W + w] + 8) >> 4
-            st[2 * W + w] = (factor * st[2 * W + w] + 8) >> 4
+            st[W + w] = np.int32(np.int32(np.int32(factor * st[W + w]) + eight) >> four)
+            st[2 * W + w] = np.int32(np.int32(np.int32(factor * st[2 * W + w]) + eight) >> four)
+    npmax = np.int32(-pmax)
     for k in range(d):
         e = a + k
         bi = edge_var[e] * W
@@ -942,12 +950,13 @@ def _fx_update(src, dst, c2v, edge_var, a, d, kind, factor, qmax, pmax, vb, st, 
             hit = np.int32(1) if st[3 * W + w] == kk else np.int32(0)
             mag = max(st[W + w], st[2 * W + w] * hit)
             neg = st[w] ^ (np.int32(1) if vb[bk + w] < 0 else np.int32(0))
-            out = np.int32(mag - 2 * neg * mag)
+            sgn = np.int32(-neg)  # 0 or -1: (mag ^ sgn) - sgn is mag or -mag
+            out = np.int32((mag ^ sgn) - sgn)
             c2v[be + w] = np.int8(out)
             if layered:
-                dst[bi + w] = np.int32(min(max(vb[bk + w] + out, -pmax), pmax))
+                dst[bi + w] = min(max(np.int32(vb[bk + w] + out), npmax), pmax)
             else:
-                dst[bi + w] += out
+                dst[bi + w] = np.int32(dst[bi + w] + out)
 
 
 @nb.njit(**NUMBA_OPTS)
