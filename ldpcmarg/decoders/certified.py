@@ -1017,11 +1017,127 @@ def _face_value(tb, edge_var, a, d, vm, pick, sl):
 
 
 @nb.njit(**NUMBA_OPTS)
+def _qadd(q, r):
+    """1 - (1 - q)(1 - r) as a sum of non-negative terms (full relative precision)."""
+    if q >= 1.0 or r >= 1.0:
+        return 1.0
+    return min(q + r - q * r, 1.0)
+
+
+@nb.njit(**NUMBA_OPTS)
+def _parity_even(qc, s):
+    """P(even parity) of independent bits from ``qc = 1 - prod |g|`` and ``s = sign(prod g)``."""
+    return 1.0 - 0.5 * qc if s > 0 else 0.5 * qc
+
+
+@nb.njit(**NUMBA_OPTS)
+def _edge_terms(w, d, pi, lp0, lp1, rr, sg):
+    """Per-bit terms of the product measure at cavities ``w``: ``pi = 1 / (1 + exp(w))``,
+    ``lp0 = ln(1 - pi)``, ``lp1 = ln pi``, ``rr = 1 - |tanh(w / 2)|``, ``sg = sign(w)``."""
+    for t in range(d):
+        wt = w[t]
+        e = math.exp(-abs(wt))
+        sp = math.log1p(e)
+        lp1[t] = -(max(wt, 0.0) + sp)
+        lp0[t] = -(max(-wt, 0.0) + sp)
+        inv = 1.0 / (1.0 + e)
+        pi[t] = e * inv if wt >= 0.0 else inv
+        rr[t] = 2.0 * e * inv
+        sg[t] = 1.0 if wt >= 0.0 else -1.0
+
+
+@nb.njit(**NUMBA_OPTS)
+def _closed_check(d, pi, lp0, lp1, rr, sg, qx, qxx, m, C, want_cov):
+    """Marginals (and covariance) of the check belief ``b(S) ∝ exp(-S.w)`` in closed form.
+
+    ``b`` is the product measure with ``P(S_t = 1) = pi_t = 1 / (1 + exp(w_t))``
+    conditioned on even parity, so with ``g_t = 1 - 2 pi_t = tanh(w_t / 2)``:
+    ``P(even) = (1 + prod g) / 2``, ``m_t = pi_t (1 - prod_{v != t} g_v) / (2 P(even))``,
+    ``P(S_t = S_u = 1) = pi_t pi_u (1 + prod_{v != t, u} g_v) / (2 P(even))``. The
+    products are kept as complements ``1 - prod |g|`` accumulated from
+    ``r = 1 - |g| = 2 / (1 + exp(|w|))`` (the form of the sum-product check update:
+    no cancellation at any magnitude) and a sign, from prefix and suffix
+    complements: O(d^2) arithmetic per check after the 2 d transcendental
+    functions of :func:`_edge_terms`, against O(d 2^d) for the pattern loop.
+
+    Reads the terms of :func:`_edge_terms`; writes ``m`` (d,) and, with
+    ``want_cov``, ``C`` (d, d); ``qx`` (d + 1,), ``qxx`` (d + 1, d + 1) are
+    scratch. Returns ``(ln Z(w), negentropy of b)``, ``Z(w) = sum_S exp(-S.w)``.
+    """
+    s_all = 1.0
+    lnz = 0.0
+    for t in range(d):
+        s_all *= sg[t]
+        lnz -= lp0[t]
+    # qxx[i, j] (i <= j): complement over the positions i..j-1 (qxx[i, i] = 0)
+    for i in range(d + 1):
+        q = 0.0
+        qxx[i, i] = 0.0
+        for j in range(i, d):
+            q = _qadd(q, rr[j])
+            qxx[i, j + 1] = q
+    q_all = qxx[0, d]
+    z_even = _parity_even(q_all, s_all)
+    lnz_even = math.log(z_even)
+    negent = -lnz_even
+    for t in range(d):
+        # P(rest odd), from the complement directly (1 - P(even) would cancel)
+        qt = _qadd(qxx[0, t], qxx[t + 1, d])
+        qx[t] = qt
+        if s_all * sg[t] > 0:
+            p_odd = 0.5 * qt
+        else:
+            p_odd = 1.0 - 0.5 * qt
+        m[t] = pi[t] * p_odd / z_even
+        negent += m[t] * lp1[t] + (1.0 - m[t]) * lp0[t]
+    if want_cov:
+        for t in range(d):
+            C[t, t] = m[t] * (1.0 - m[t])
+            for u in range(t + 1, d):
+                q = _qadd(_qadd(qxx[0, t], qxx[t + 1, u]), qxx[u + 1, d])
+                p_tu = pi[t] * pi[u] * _parity_even(q, s_all * sg[t] * sg[u]) / z_even
+                C[t, u] = p_tu - m[t] * m[u]
+                C[u, t] = C[t, u]
+    return lnz + lnz_even, negent
+
+
+@nb.njit(**NUMBA_OPTS)
+def _closed_check_dual(w, d, kk, al, r, L_kk, pi, lp0, lp1, rr, sg):
+    """:func:`_check_dual` of an allocated check (``kk >= 0``) in closed form.
+
+    ``ln Z_b = ln sum_{S even, S_kk = b} exp(-S.w')`` (``w'`` = ``w`` with
+    ``w'_kk = w_kk - al L_kk / r``) is ``sum_t softplus(-w'_t) + ln P(S_kk = b)
+    + ln P(rest has parity b)`` under the product measure of
+    :func:`_closed_check`; ``w`` is left unchanged.
+    """
+    s_rest = 1.0
+    base = 0.0
+    q = 0.0
+    for t in range(d):
+        wt = w[t] - al * L_kk / r if t == kk else w[t]
+        e = math.exp(-abs(wt))
+        sp = math.log1p(e)
+        lp1[t] = -(max(wt, 0.0) + sp)
+        lp0[t] = -(max(-wt, 0.0) + sp)
+        base -= lp0[t]
+        if t != kk:
+            s_rest *= 1.0 if wt >= 0.0 else -1.0
+            q = _qadd(q, 2.0 * e / (1.0 + e))
+    p_even = _parity_even(q, s_rest)
+    p_odd = 0.5 * q if s_rest > 0 else 1.0 - 0.5 * q
+    lz0 = base + lp0[kk] + math.log(p_even)
+    lz1 = base + lp1[kk] + math.log(p_odd)
+    x0 = r * lz0 / (r - al)
+    x1 = r * lz1 / (r - al)
+    big = max(x0, x1)
+    return -(r - al) * (big + math.log(math.exp(x0 - big) + math.exp(x1 - big)))
+
+
+@nb.njit(**NUMBA_OPTS)
 def _peeled_project_frame(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, offset,
-                          bit_ptr, bits, masks, rho, kappa, alloc_k, alloc_alpha, bit_alpha,
-                          tight_factor, tb, tl, mu, w_e, m_e, slack, vmask, tight, assigned,
-                          order, deg, is_assigned, q, mt, cvec, rhs, C, piv, lp0, lp1, facs,
-                          nres, newton_max, reason, out):
+                          bit_ptr, bits, rho, kappa, alloc_k, alloc_alpha, bit_alpha,
+                          tight_factor, newton_max, tb, tl, mu, w_e, m_e, c_e, made, slack,
+                          vmask, tight, assigned, order, deg, is_assigned, out):
     """Point of L and entropic certificate from the message cavities, tight checks peeled.
 
     The check beliefs start as ``b_c(S) ∝ exp(-sum_{t in S} w_ct)`` at the message
@@ -1037,93 +1153,103 @@ def _peeled_project_frame(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, 
     message change, peg-1008-3-6 at 2.5 dB). Each tight check therefore becomes
     the linear equation "the targets keep the check's slack", solved by peeling
     (an equation takes a bit that no other remaining equation contains; the
-    most uncertain such bit moves), in reverse peeling order. Then every check
-    is matched to its targets by one exact linear step
-    ``tau(S) <- b(S) (1 + sum_t c_t (S_t - m_t))``, ``Cov c = q - m``; a check
-    where that leaves an entry <= 0 gets the additive correction and the point
-    is mixed with the uniform point (as in :func:`_project_frame`).
+    most uncertain such bit moves), in reverse peeling order; checks made tight
+    by moved targets take a bit of their own in a few further rounds.
 
-    Every deviation from the dual's minimisers is then of the order of the
-    fixed-point residual and the gap second order in it, where the uniform mix
-    costs first order. ``out`` (5,): F(tau), G(mu), theta, largest mismatch,
-    number of checks that needed the fallback. Scratch arrays: ``w_e``, ``m_e``
-    (E,), ``slack``, ``vmask``, ``tight``, ``assigned``, ``order``, ``reason`` (m,),
-    ``deg``, ``is_assigned`` (n,), ``facs`` (largest K,), ``nres`` (4,), the rest
-    (dmax + 1,) / (dmax + 1, dmax + 1).
+    Then every check is matched to its targets by one exact linear step
+    ``tau(S) = b(S) (1 + u(S))``, ``u(S) = sum_t c_t (S_t - m_t)``, ``Cov c = q - m``
+    (marginals ``m + Cov c = q`` exactly, total mass kept). Where
+    ``sum_t |c_t| max(m_t, 1 - m_t) < 1`` every ``1 + u > 0`` and the check's
+    negentropy has the closed-form upper bound
+    ``sum b ln b - r.w + c.r`` (``r = q - m``; from ``ln b = -S.w + const`` and
+    ``(1 + u) ln(1 + u) <= u + u^2``), so a certificate costs O(d^3) per check
+    and no pattern loop; the point itself is written by :func:`_emit_frame`
+    (``c_e``). Elsewhere the check is made at once (``made[c]``): the linear step
+    on the pattern loop, damped Newton (:func:`_newton_match`), or the additive
+    correction with the uniform mix of :func:`_project_frame` (then every check
+    is made and F evaluated exactly).
+
+    Every deviation from the dual's minimisers is of the order of the
+    fixed-point residual, and the gap second order in it, where the uniform mix
+    costs first order. ``out`` (5,): an upper bound on F(tau), G(mu), theta,
+    0 (the mismatch is measured by :func:`_emit_frame`), checks made at once.
+    Scratch/state: ``w_e``, ``m_e``, ``c_e`` (E,), ``made``, ``slack``, ``vmask``,
+    ``tight``, ``assigned``, ``order`` (m,), ``deg``, ``is_assigned`` (n,).
     """
     n = L.shape[0]
     m = check_ptr.shape[0] - 1
+    dmax = 0
+    for c in range(m):
+        dmax = max(dmax, check_ptr[c + 1] - check_ptr[c])
+    kmax = 1
+    for c in range(m):
+        kmax = max(kmax, offset[c + 1] - offset[c])
+    w = np.empty(dmax, dtype=np.float64)
+    q = np.empty(dmax, dtype=np.float64)
+    mt = np.empty(dmax, dtype=np.float64)
+    cvec = np.empty(dmax, dtype=np.float64)
+    rhs = np.empty(dmax, dtype=np.float64)
+    piv = np.empty(dmax, dtype=np.float64)
+    pi = np.empty(dmax, dtype=np.float64)
+    lp0 = np.empty(dmax, dtype=np.float64)
+    lp1 = np.empty(dmax, dtype=np.float64)
+    rr = np.empty(dmax, dtype=np.float64)
+    sg = np.empty(dmax, dtype=np.float64)
+    qx = np.empty(dmax + 1, dtype=np.float64)
+    C = np.empty((dmax, dmax), dtype=np.float64)
+    qxx = np.empty((dmax + 1, dmax + 1), dtype=np.float64)
+    facs = np.empty(kmax, dtype=np.float64)
+    nres = np.empty(4, dtype=np.float64)
+    E = c2v.shape[0]
+    pi_e = np.empty(E, dtype=np.float64)
+    lp0_e = np.empty(E, dtype=np.float64)
+    lp1_e = np.empty(E, dtype=np.float64)
+    rr_e = np.empty(E, dtype=np.float64)
+    sg_e = np.empty(E, dtype=np.float64)
     for i in range(n):
         tb[i] = _prob_one(L[i])
         deg[i] = 0
         is_assigned[i] = False
-    # 1. check beliefs at the message cavities (product form: no overflow at any
-    #    magnitude), their marginals, most likely odd pattern and its slack
+    # 1. check beliefs at the message cavities: marginals, dual term, most likely
+    #    odd pattern V and the slack of its face (linear in the marginals)
     g_checks = 0.0
     for c in range(m):
         a = check_ptr[c]
         d = check_ptr[c + 1] - a
-        o = offset[c]
-        K = offset[c + 1] - o
-        bp = bit_ptr[c]
-        sp_sum = 0.0
         vm = 0
         weakest = 0
         parity = 0
         for k in range(d):
             wk = L[edge_var[a + k]] - c2v[a + k]
             w_e[a + k] = wk
-            # ln P(bit = 1) = -softplus(w), ln P(bit = 0) = -softplus(-w) of the product
-            # measure, with one exp and one log1p
-            sp = math.log1p(math.exp(-abs(wk)))
-            lp1[k] = -(max(wk, 0.0) + sp)
-            lp0[k] = -(max(-wk, 0.0) + sp)
-            sp_sum -= lp0[k]
+            w[k] = wk
             if wk < 0.0:
                 vm |= 1 << k
                 parity ^= 1
-            if abs(wk) < abs(w_e[a + weakest]):
+            if abs(wk) < abs(w[weakest]):
                 weakest = k
         if parity == 0:
             vm ^= 1 << weakest
         vmask[c] = vm
-        best = -np.inf
-        for j in range(K):
-            s = 0.0
-            base = bp + j * d
-            for t in range(d):
-                s += lp0[t] + bits[base + t] * (lp1[t] - lp0[t])
-            tl[o + j] = s
-            if s > best:
-                best = s
-        tot = 0.0
-        for j in range(K):
-            x = math.exp(tl[o + j] - best)
-            tl[o + j] = x
-            tot += x
-        for t in range(d):
-            m_e[a + t] = 0.0
-        sl = 0.0
-        for j in range(K):
-            x = tl[o + j] / tot
-            tl[o + j] = x
-            base = bp + j * d
-            dist = 0
-            for t in range(d):
-                bt = bits[base + t]
-                m_e[a + t] += x * bt
-                dist += bt ^ ((vm >> t) & 1)
-            sl += x * (dist - 1)
-        slack[c] = sl
+        _edge_terms(w, d, pi_e[a:], lp0_e[a:], lp1_e[a:], rr_e[a:], sg_e[a:])
+        lnz, _ = _closed_check(d, pi_e[a:], lp0_e[a:], lp1_e[a:], rr_e[a:], sg_e[a:], qx, qxx,
+                               mt, C, False)
+        size = 0
+        lhs = 0.0
+        for k in range(d):
+            m_e[a + k] = mt[k]
+            if (vm >> k) & 1:
+                size += 1
+                lhs += mt[k]
+            else:
+                lhs -= mt[k]
+        slack[c] = size - 1 - lhs
         kk = alloc_k[c]
         if kk < 0:
-            # -rho ln Z(w), ln Z = ln sum_S prod (product measure) + sum_t softplus(-w_t)
-            g_checks -= rho[c] * (best + math.log(tot) + sp_sum)
+            g_checks -= rho[c] * lnz
         else:
-            for k in range(d):
-                q[k] = w_e[a + k]
-            g_checks += _check_dual(q, bits, o, K, bp, d, kk, alloc_alpha[c], rho[c],
-                                    L[edge_var[a + kk]])
+            g_checks += _closed_check_dual(w, d, kk, alloc_alpha[c], rho[c], L[edge_var[a + kk]],
+                                           pi, lp0, lp1, rr, sg)
         for k in range(d):
             mu[a + k] = rho[c] * w_e[a + k]
     # 2. tight checks: slack below tight_factor times the largest possible change of
@@ -1218,8 +1344,7 @@ def _peeled_project_frame(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, 
             break
     # 4. every check matched to its targets by one exact linear step
     theta = 0.0
-    worst = 0.0
-    fallbacks = 0
+    n_made = 0
     f_checks = 0.0
     for c in range(m):
         a = check_ptr[c]
@@ -1227,51 +1352,69 @@ def _peeled_project_frame(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, 
         o = offset[c]
         K = offset[c + 1] - o
         bp = bit_ptr[c]
-        big = 0.0
+        for k in range(d):
+            w[k] = w_e[a + k]
+        _, negent = _closed_check(d, pi_e[a:], lp0_e[a:], lp1_e[a:], rr_e[a:], sg_e[a:], qx, qxx,
+                                  mt, C, True)
+        bound = 0.0
+        rdotw = 0.0
         for t in range(d):
             q[t] = tb[edge_var[a + t]]
-            mt[t] = m_e[a + t]
             rhs[t] = q[t] - mt[t]
-            big = max(big, abs(rhs[t]))
-        ok = big == 0.0
-        reason[c] = 0
-        if not ok:
-            _covariance(tl, bits, o, K, bp, d, mt, C)
-            reason[c] = 1
-            if _solve_scaled(C, rhs, d, cvec, piv):
-                reason[c] = 2
+            rdotw += rhs[t] * w[t]
+            bound += abs(rhs[t])
+        made[c] = False
+        ok = False
+        if bound == 0.0:
+            for t in range(d):
+                c_e[a + t] = 0.0
+            f_checks += rho[c] * negent
+            continue
+        if _solve_scaled(C, rhs, d, cvec, piv):
+            reach = 0.0
+            cdotr = 0.0
+            for t in range(d):
+                reach += abs(cvec[t]) * max(mt[t], 1.0 - mt[t])
+                cdotr += cvec[t] * (q[t] - mt[t])
+            if reach < 1.0:
                 ok = True
-                fac0 = 1.0
                 for t in range(d):
-                    fac0 -= cvec[t] * mt[t]
-                for j in range(K):
-                    base = bp + j * d
-                    fac = fac0
-                    for t in range(d):
-                        fac += cvec[t] * bits[base + t]
-                    facs[j] = fac
-                    ok = ok and fac > 0.0
-                if ok:
-                    for j in range(K):
-                        tl[o + j] *= facs[j]
+                    c_e[a + t] = cvec[t]
+                f_checks += rho[c] * (negent - rdotw + cdotr)
         if ok:
-            reason[c] = 0
-        else:
-            # the first-order step left an entry <= 0: damped Newton from the cavities
-            for k in range(d):
-                lp0[k] = w_e[a + k]
-            _newton_match(lp0, q, bits, o, K, bp, d, newton_max, tl, mt, cvec, rhs, C, piv,
-                          nres)
-            if nres[0] > 0.0:
-                ok = True
-                reason[c] = 0
-            else:
-                reason[c] = 3
+            continue
+        # made at once on the pattern loop: the linear step where it keeps every entry
+        # > 0, else damped Newton from the cavities, else the additive correction
+        made[c] = True
+        n_made += 1
+        _product_belief(w, bits, o, K, bp, d, tl)
+        _check_marginals(tl, bits, o, K, bp, d, mt)
+        _covariance(tl, bits, o, K, bp, d, mt, C)
+        for t in range(d):
+            rhs[t] = q[t] - mt[t]
+        if _solve_scaled(C, rhs, d, cvec, piv):
+            fac0 = 1.0
+            for t in range(d):
+                fac0 -= cvec[t] * mt[t]
+            ok = True
+            for j in range(K):
+                base = bp + j * d
+                fac = fac0
+                for t in range(d):
+                    fac += cvec[t] * bits[base + t]
+                facs[j] = fac
+                ok = ok and fac > 0.0
+            if ok:
+                for j in range(K):
+                    tl[o + j] *= facs[j]
+        if not ok:
+            _newton_match(w, q, bits, o, K, bp, d, newton_max, tl, mt, cvec, rhs, C, piv, nres)
+            ok = nres[0] > 0.0
+            if not ok:
                 _check_marginals(tl, bits, o, K, bp, d, mt)
         if not ok:
             # additive correction sum_t delta_t (2 S_t - 1) / 2**(d-2) (exact marginals,
             # may leave entries < 0: the uniform mix below restores them)
-            fallbacks += 1
             scale = 1.0 / 2.0 ** (d - 2)
             for j in range(K):
                 corr = 0.0
@@ -1286,19 +1429,19 @@ def _peeled_project_frame(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, 
                     need = -x / (u - x)
                     if need > theta:
                         theta = need
-        _check_marginals(tl, bits, o, K, bp, d, mt)
         negent = 0.0
-        for t in range(d):
-            worst = max(worst, abs(q[t] - mt[t]))
         for j in range(o, o + K):
             negent += _xlogx(tl[j])
         f_checks += rho[c] * negent
     if theta > 0.0:
+        # every check made, mixed with the uniform point, F evaluated exactly
         theta = min(1.0, 2.0 * theta)  # margin: no entry ends at exactly 0
+        _emit_checks(check_ptr, offset, bit_ptr, bits, w_e, m_e, c_e, made, tl)
         for i in range(n):
             tb[i] = (1.0 - theta) * tb[i] + 0.5 * theta
         f_checks = 0.0
         for c in range(m):
+            made[c] = True
             o = offset[c]
             K = offset[c + 1] - o
             acc = 0.0
@@ -1326,27 +1469,100 @@ def _peeled_project_frame(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, 
     out[0] = f_bits + f_checks
     out[1] = g_bits + g_checks
     out[2] = theta
-    out[3] = worst
-    out[4] = fallbacks
+    out[3] = 0.0
+    out[4] = n_made
+
+
+@nb.njit(**NUMBA_OPTS)
+def _emit_checks(check_ptr, offset, bit_ptr, bits, w_e, m_e, c_e, made, tl):
+    """Write ``tl = b(S) (1 + sum_t c_t (S_t - m_t))`` of every check not made yet.
+
+    ``b`` is the product measure at the cavities ``w_e`` on the even patterns,
+    normalised by its own total (so the entries are exact products, no ``exp``
+    per pattern); ``m_e``, ``c_e`` as left by :func:`_peeled_project_frame`.
+    """
+    m = check_ptr.shape[0] - 1
+    dmax = 0
+    for c in range(m):
+        dmax = max(dmax, check_ptr[c + 1] - check_ptr[c])
+    p0 = np.empty(dmax, dtype=np.float64)
+    p1 = np.empty(dmax, dtype=np.float64)
+    for c in range(m):
+        if made[c]:
+            continue
+        a = check_ptr[c]
+        d = check_ptr[c + 1] - a
+        o = offset[c]
+        K = offset[c + 1] - o
+        bp = bit_ptr[c]
+        fac0 = 1.0
+        for t in range(d):
+            fac0 -= c_e[a + t] * m_e[a + t]
+            p1[t] = _prob_one(w_e[a + t])
+            p0[t] = _prob_one(-w_e[a + t])
+        tot = 0.0
+        for j in range(K):
+            base = bp + j * d
+            x = 1.0
+            for t in range(d):
+                x *= p1[t] if bits[base + t] else p0[t]
+            tl[o + j] = x
+            tot += x
+        for j in range(K):
+            base = bp + j * d
+            fac = fac0
+            for t in range(d):
+                fac += c_e[a + t] * bits[base + t]
+            tl[o + j] = tl[o + j] / tot * fac
+
+
+@nb.njit(**NUMBA_OPTS)
+def _emit_frame(llr, check_ptr, edge_var, offset, bit_ptr, bits, rho, kappa, tb, tl, w_e, m_e,
+                c_e, made, out):
+    """The point of a peeled certificate: write ``tl`` and evaluate F(tau) exactly.
+
+    ``out`` (2,): F(tau) (nats) and the largest |bit target - check marginal|
+    (rounding level: the point lies in L up to it).
+    """
+    _emit_checks(check_ptr, offset, bit_ptr, bits, w_e, m_e, c_e, made, tl)
+    m = check_ptr.shape[0] - 1
+    n = tb.shape[0]
+    f = 0.0
+    worst = 0.0
+    for c in range(m):
+        made[c] = True
+        a = check_ptr[c]
+        d = check_ptr[c + 1] - a
+        o = offset[c]
+        K = offset[c + 1] - o
+        bp = bit_ptr[c]
+        acc = 0.0
+        for j in range(o, o + K):
+            acc += _xlogx(tl[j])
+        f += rho[c] * acc
+        for t in range(d):
+            s = 0.0
+            for j in range(K):
+                s += tl[o + j] * bits[bp + j * d + t]
+            worst = max(worst, abs(s - tb[edge_var[a + t]]))
+    for i in range(n):
+        t = tb[i]
+        f += llr[i] * t + kappa[i] * (_xlogx(t) + _xlogx(1.0 - t))
+    out[0] = f
+    out[1] = worst
 
 
 @nb.njit(parallel=True, **NUMBA_OPTS)
 def _peeled_certify_batch(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, offset, bit_ptr,
-                          bits, masks, rho, kappa, alloc_k, alloc_alpha, bit_alpha, tight_factor,
-                          newton_max, active, tb, tl, mu, out, dmax):
-    """:func:`_peeled_project_frame` on every active frame (prange; ``out`` as
+                          bits, rho, kappa, alloc_k, alloc_alpha, bit_alpha, tight_factor,
+                          newton_max, active, tb, tl, mu, w_e, m_e, c_e, made, out):
+    """:func:`_peeled_project_frame` on every active frame (prange; ``out`` (F, 8) as
     :func:`_project_certify_batch`, columns 5-7 NaN, NaN, 0)."""
     F, n = llr.shape
     m = check_ptr.shape[0] - 1
-    E = c2v.shape[1]
-    kmax = 1
-    for c in range(m):
-        kmax = max(kmax, offset[c + 1] - offset[c])
     for f in nb.prange(F):
         if not active[f]:
             continue
-        w_e = np.empty(E, dtype=np.float64)
-        m_e = np.empty(E, dtype=np.float64)
         slack = np.empty(m, dtype=np.float64)
         vmask = np.empty(m, dtype=np.int64)
         tight = np.empty(m, dtype=np.bool_)
@@ -1354,28 +1570,32 @@ def _peeled_certify_batch(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, 
         order = np.empty(m, dtype=np.int64)
         deg = np.empty(n, dtype=np.int64)
         is_assigned = np.empty(n, dtype=np.bool_)
-        q = np.empty(dmax + 1, dtype=np.float64)
-        mt = np.empty(dmax + 1, dtype=np.float64)
-        cvec = np.empty(dmax + 1, dtype=np.float64)
-        rhs = np.empty(dmax + 1, dtype=np.float64)
-        piv = np.empty(dmax + 1, dtype=np.float64)
-        C = np.empty((dmax + 1, dmax + 1), dtype=np.float64)
-        lp0 = np.empty(dmax + 1, dtype=np.float64)
-        lp1 = np.empty(dmax + 1, dtype=np.float64)
-        facs = np.empty(kmax, dtype=np.float64)
-        reason = np.empty(m, dtype=np.int8)
-        nres = np.empty(4, dtype=np.float64)
         o5 = np.empty(5, dtype=np.float64)
         _peeled_project_frame(llr[f], L[f], c2v[f], check_ptr, edge_var, var_ptr, var_edges,
-                              offset, bit_ptr, bits, masks, rho, kappa, alloc_k, alloc_alpha,
-                              bit_alpha, tight_factor, tb[f], tl[f], mu[f], w_e, m_e, slack,
-                              vmask, tight, assigned, order, deg, is_assigned, q, mt, cvec, rhs,
-                              C, piv, lp0, lp1, facs, nres, newton_max, reason, o5)
+                              offset, bit_ptr, bits, rho, kappa, alloc_k, alloc_alpha,
+                              bit_alpha, tight_factor, newton_max, tb[f], tl[f], mu[f], w_e[f],
+                              m_e[f], c_e[f], made[f], slack, vmask, tight, assigned, order,
+                              deg, is_assigned, o5)
         for k in range(5):
             out[f, k] = o5[k]
         out[f, 5] = np.nan
         out[f, 6] = np.nan
         out[f, 7] = 0.0
+
+
+@nb.njit(parallel=True, **NUMBA_OPTS)
+def _emit_batch(llr, check_ptr, edge_var, offset, bit_ptr, bits, rho, kappa, select, tb, tl,
+                w_e, m_e, c_e, made, out):
+    """:func:`_emit_frame` on the selected frames; F(tau) to ``out[f, 0]``, mismatch to
+    ``out[f, 3]``."""
+    for f in nb.prange(llr.shape[0]):
+        if not select[f]:
+            continue
+        o2 = np.empty(2, dtype=np.float64)
+        _emit_frame(llr[f], check_ptr, edge_var, offset, bit_ptr, bits, rho, kappa, tb[f],
+                    tl[f], w_e[f], m_e[f], c_e[f], made[f], o2)
+        out[f, 0] = o2[0]
+        out[f, 3] = o2[1]
 
 
 def _gap_of(out):
@@ -1603,6 +1823,7 @@ class CertifiedTRW:
         tol = self.tol
         layered = self.schedule == "layered"
         hist_x = hist_g = hist_m = None
+        peel = None
         for rnd in range(self.polish_rounds + 1):
             budget = self.max_iter - state[:, 0]
             active &= budget > 0
@@ -1629,11 +1850,14 @@ class CertifiedTRW:
                           c2v, L, state, resid, self._dmax)
             t1 = time.perf_counter()
             if self.projection == "peeled":
+                if peel is None:
+                    peel = (np.zeros((F, E)), np.zeros((F, E)), np.zeros((F, E)),
+                            np.zeros((F, gr.m), dtype=np.bool_))
                 _peeled_certify_batch(lam, L, c2v, gr.check_ptr, gr.edge_var, gr.var_ptr,
-                                      gr.var_edges, gr.offset, gr.bit_ptr, gr.bits, gr.masks,
-                                      self.rho, self.kappa, self._alloc_k, self._alloc_alpha,
+                                      gr.var_edges, gr.offset, gr.bit_ptr, gr.bits, self.rho,
+                                      self.kappa, self._alloc_k, self._alloc_alpha,
                                       self._bit_alpha, self.tight_factor, self.newton_max,
-                                      active, tb, tl, mu, out, self._dmax)
+                                      active, tb, tl, mu, *peel, out)
             else:
                 _project_certify_batch(lam, L, c2v, gr.check_ptr, gr.edge_var, gr.edge_check,
                                        gr.var_ptr, gr.var_edges, gr.offset, gr.bit_ptr, gr.bits,
@@ -1650,6 +1874,13 @@ class CertifiedTRW:
             done |= active & (gap <= target)
             active &= ~done
             tol *= 0.1
+        if peel is not None:
+            # the points of the peeled certificates, and F(tau) exactly (the
+            # certificates used an upper bound on it: the gaps only shrink)
+            t2 = time.perf_counter()
+            _emit_batch(lam, gr.check_ptr, gr.edge_var, gr.offset, gr.bit_ptr, gr.bits,
+                        self.rho, self.kappa, rounds > 0, tb, tl, *peel, out)
+            secs["certificate"] += time.perf_counter() - t2
         f_val = out[:, 0].copy()
         gap = _gap_of(out)
         return CertifiedBatch(tau_bits=tb, tau_local=tl, free_energy=f_val, certified_gap=gap,
