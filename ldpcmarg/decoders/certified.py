@@ -395,11 +395,17 @@ def _anderson_frame(llr, check_ptr, edge_var, rho, max_iter, tol, mem, c2v, L, R
         if not (abs(tot) > 1e-300) or not math.isfinite(tot):
             hist = 1
             continue
+        # x <- sum_a gamma_a G(x_a) / sum_a gamma_a, one contiguous pass per slot (slot
+        # indices outside the edge loop: an integer modulo per edge and slot cost more
+        # than the arithmetic)
+        g0 = gam[0] / tot
         for e in range(E):
-            acc = 0.0
-            for a in range(k):
-                acc += gam[a] * G[(pos - a) % slots, e]
-            c2v[e] = acc / tot
+            c2v[e] = g0 * G[pos, e]
+        for a in range(1, k):
+            pa = (pos - a) % slots
+            ga = gam[a] / tot
+            for e in range(E):
+                c2v[e] += ga * G[pa, e]
         _refresh_posteriors(llr, check_ptr, edge_var, rho, c2v, L)
     state[1] = hist
     state[2] = best
@@ -1102,31 +1108,33 @@ def _closed_check(d, pi, lp0, lp1, rr, sg, qx, qxx, m, C, want_cov):
 
 
 @nb.njit(**NUMBA_OPTS)
-def _closed_check_dual(w, d, kk, al, r, L_kk, pi, lp0, lp1, rr, sg):
+def _closed_check_dual(w, d, kk, al, r, L_kk, lp0, rr, sg):
     """:func:`_check_dual` of an allocated check (``kk >= 0``) in closed form.
 
     ``ln Z_b = ln sum_{S even, S_kk = b} exp(-S.w')`` (``w'`` = ``w`` with
     ``w'_kk = w_kk - al L_kk / r``) is ``sum_t softplus(-w'_t) + ln P(S_kk = b)
     + ln P(rest has parity b)`` under the product measure of
-    :func:`_closed_check`; ``w`` is left unchanged.
+    :func:`_closed_check`. ``lp0``, ``rr``, ``sg``: the terms of
+    :func:`_edge_terms` at ``w`` (only position ``kk`` moves).
     """
     s_rest = 1.0
     base = 0.0
     q = 0.0
     for t in range(d):
-        wt = w[t] - al * L_kk / r if t == kk else w[t]
-        e = math.exp(-abs(wt))
-        sp = math.log1p(e)
-        lp1[t] = -(max(wt, 0.0) + sp)
-        lp0[t] = -(max(-wt, 0.0) + sp)
-        base -= lp0[t]
         if t != kk:
-            s_rest *= 1.0 if wt >= 0.0 else -1.0
-            q = _qadd(q, 2.0 * e / (1.0 + e))
+            base -= lp0[t]
+            s_rest *= sg[t]
+            q = _qadd(q, rr[t])
+    wk = w[kk] - al * L_kk / r
+    e = math.exp(-abs(wk))
+    sp = math.log1p(e)
+    lp1k = -(max(wk, 0.0) + sp)
+    lp0k = -(max(-wk, 0.0) + sp)
+    base -= lp0k
     p_even = _parity_even(q, s_rest)
     p_odd = 0.5 * q if s_rest > 0 else 1.0 - 0.5 * q
-    lz0 = base + lp0[kk] + math.log(p_even)
-    lz1 = base + lp1[kk] + math.log(p_odd)
+    lz0 = base + lp0k + math.log(p_even)
+    lz1 = base + lp1k + math.log(p_odd)
     x0 = r * lz0 / (r - al)
     x1 = r * lz1 / (r - al)
     big = max(x0, x1)
@@ -1190,11 +1198,6 @@ def _peeled_project_frame(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, 
     cvec = np.empty(dmax, dtype=np.float64)
     rhs = np.empty(dmax, dtype=np.float64)
     piv = np.empty(dmax, dtype=np.float64)
-    pi = np.empty(dmax, dtype=np.float64)
-    lp0 = np.empty(dmax, dtype=np.float64)
-    lp1 = np.empty(dmax, dtype=np.float64)
-    rr = np.empty(dmax, dtype=np.float64)
-    sg = np.empty(dmax, dtype=np.float64)
     qx = np.empty(dmax + 1, dtype=np.float64)
     C = np.empty((dmax, dmax), dtype=np.float64)
     qxx = np.empty((dmax + 1, dmax + 1), dtype=np.float64)
@@ -1249,7 +1252,7 @@ def _peeled_project_frame(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, 
             g_checks -= rho[c] * lnz
         else:
             g_checks += _closed_check_dual(w, d, kk, alloc_alpha[c], rho[c], L[edge_var[a + kk]],
-                                           pi, lp0, lp1, rr, sg)
+                                           lp0_e[a:], rr_e[a:], sg_e[a:])
         for k in range(d):
             mu[a + k] = rho[c] * w_e[a + k]
     # 2. tight checks: slack below tight_factor times the largest possible change of
@@ -1517,6 +1520,24 @@ def _emit_checks(check_ptr, offset, bit_ptr, bits, w_e, m_e, c_e, made, tl):
 
 
 @nb.njit(**NUMBA_OPTS)
+def _check_negent_mismatch(tl, bits, o, K, bp, d, tb, edge_var, a, mt):
+    """(sum tau ln tau, largest |marginal - target|) of one check's belief, one pass."""
+    negent = 0.0
+    for t in range(d):
+        mt[t] = 0.0
+    for j in range(K):
+        x = tl[o + j]
+        negent += _xlogx(x)
+        base = bp + j * d
+        for t in range(d):
+            mt[t] += x * bits[base + t]
+    worst = 0.0
+    for t in range(d):
+        worst = max(worst, abs(mt[t] - tb[edge_var[a + t]]))
+    return negent, worst
+
+
+@nb.njit(**NUMBA_OPTS)
 def _emit_frame(llr, check_ptr, edge_var, offset, bit_ptr, bits, rho, kappa, tb, tl, w_e, m_e,
                 c_e, made, out):
     """The point of a peeled certificate: write ``tl`` and evaluate F(tau) exactly.
@@ -1529,22 +1550,17 @@ def _emit_frame(llr, check_ptr, edge_var, offset, bit_ptr, bits, rho, kappa, tb,
     n = tb.shape[0]
     f = 0.0
     worst = 0.0
+    mt = np.empty(check_ptr[1] - check_ptr[0] if m else 1, dtype=np.float64)
     for c in range(m):
         made[c] = True
         a = check_ptr[c]
         d = check_ptr[c + 1] - a
-        o = offset[c]
-        K = offset[c + 1] - o
-        bp = bit_ptr[c]
-        acc = 0.0
-        for j in range(o, o + K):
-            acc += _xlogx(tl[j])
-        f += rho[c] * acc
-        for t in range(d):
-            s = 0.0
-            for j in range(K):
-                s += tl[o + j] * bits[bp + j * d + t]
-            worst = max(worst, abs(s - tb[edge_var[a + t]]))
+        if d > mt.shape[0]:
+            mt = np.empty(d, dtype=np.float64)
+        negent, dev = _check_negent_mismatch(tl, bits, offset[c], offset[c + 1] - offset[c],
+                                             bit_ptr[c], d, tb, edge_var, a, mt)
+        f += rho[c] * negent
+        worst = max(worst, dev)
     for i in range(n):
         t = tb[i]
         f += llr[i] * t + kappa[i] * (_xlogx(t) + _xlogx(1.0 - t))
@@ -1824,6 +1840,7 @@ class CertifiedTRW:
         layered = self.schedule == "layered"
         hist_x = hist_g = hist_m = None
         peel = None
+        emitted = np.zeros(F, dtype=np.bool_)
         for rnd in range(self.polish_rounds + 1):
             budget = self.max_iter - state[:, 0]
             active &= budget > 0
@@ -1871,15 +1888,31 @@ class CertifiedTRW:
             rounds[active] += 1
             gap = _gap_of(out)
             target = np.maximum(abs_gap_tol, gap_tol * np.maximum(1.0, np.abs(out[:, 0])))
+            if peel is not None:
+                # near misses of the closed-form bound (it counts each check's
+                # Kullback-Leibler term about twice): write their points and evaluate
+                # F exactly, which may certify them without further sweeps
+                near = active & (gap > target) & (gap <= 4.0 * target)
+                if near.any():
+                    t3 = time.perf_counter()
+                    _emit_batch(lam, gr.check_ptr, gr.edge_var, gr.offset, gr.bit_ptr,
+                                gr.bits, self.rho, self.kappa, near, tb, tl, *peel, out)
+                    emitted |= near
+                    secs["certificate"] += time.perf_counter() - t3
+                    gap = _gap_of(out)
+                    target = np.maximum(abs_gap_tol,
+                                        gap_tol * np.maximum(1.0, np.abs(out[:, 0])))
             done |= active & (gap <= target)
             active &= ~done
+            if peel is not None:
+                emitted &= done     # frames that go on are certified afresh next round
             tol *= 0.1
         if peel is not None:
             # the points of the peeled certificates, and F(tau) exactly (the
             # certificates used an upper bound on it: the gaps only shrink)
             t2 = time.perf_counter()
             _emit_batch(lam, gr.check_ptr, gr.edge_var, gr.offset, gr.bit_ptr, gr.bits,
-                        self.rho, self.kappa, rounds > 0, tb, tl, *peel, out)
+                        self.rho, self.kappa, (rounds > 0) & ~emitted, tb, tl, *peel, out)
             secs["certificate"] += time.perf_counter() - t2
         f_val = out[:, 0].copy()
         gap = _gap_of(out)

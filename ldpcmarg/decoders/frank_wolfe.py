@@ -133,7 +133,7 @@ LOW_TEMPERATURE_LLR = 300.0
 #: messages move by about 3e-5 to 1e-4; the earlier setting (memory 5, 1e-8, every 6)
 #: took 55-70 sweeps instead of 30-41. Memory 8 saves about 10 % of the sweeps but its
 #: Gram matrix (O(memory^2 E) per sweep) costs more than that.
-_BATCHED_SETTINGS = {"anderson": 5, "tol": 1e-2, "polish_rounds": 16, "check_every": 2,
+_BATCHED_SETTINGS = {"anderson": 3, "tol": 1e-2, "polish_rounds": 16, "check_every": 3,
                      "linear": False, "kappa_floor": 0.1, "projection": "peeled"}
 
 _VARIANTS = ("vanilla", "away", "pairwise", "contracted")
