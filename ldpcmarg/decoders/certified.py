@@ -110,6 +110,8 @@ __all__ = ["boxplus", "CertifiedBatch", "CertifiedTRW", "SCHEDULES"]
 _TINY = 1e-300
 
 SCHEDULES = ("layered", "flooding")
+#: Largest coefficient of the peeled projection's linear step (rounding of 1 + u ~ 1e-12).
+_C_MAX = 1e4
 PROJECTIONS = ("newton", "peeled")
 
 
@@ -1376,10 +1378,15 @@ def _peeled_project_frame(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, 
         if _solve_scaled(C, rhs, d, cvec, piv):
             reach = 0.0
             cdotr = 0.0
+            cmax = 0.0
             for t in range(d):
+                cmax = max(cmax, abs(cvec[t]))
                 reach += abs(cvec[t]) * max(mt[t], 1.0 - mt[t])
                 cdotr += cvec[t] * (q[t] - mt[t])
-            if reach < 1.0:
+            # reach < 1 keeps every 1 + u > 0; |c| <= _C_MAX keeps the rounding of
+            # 1 + u (a sum of terms of size |c|) at ~1e-12: a large c means the
+            # targets ask the check to move along a direction of almost no variance
+            if reach < 1.0 and cmax <= _C_MAX:
                 ok = True
                 for t in range(d):
                     c_e[a + t] = cvec[t]
@@ -1397,9 +1404,10 @@ def _peeled_project_frame(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, 
             rhs[t] = q[t] - mt[t]
         if _solve_scaled(C, rhs, d, cvec, piv):
             fac0 = 1.0
+            ok = True
             for t in range(d):
                 fac0 -= cvec[t] * mt[t]
-            ok = True
+                ok = ok and abs(cvec[t]) <= _C_MAX
             for j in range(K):
                 base = bp + j * d
                 fac = fac0
