@@ -14,8 +14,17 @@ frame owns its buffers):
    ``omega > 1`` over-relaxes), optionally adapted: whenever the largest change
    grows from one sweep to the next, ``omega`` is multiplied by ``0.7`` (down to
    ``omega_min``). Measured in ``experiments/bench_certified.py``.
-2. **Projection** — the beliefs are made a point of the local polytope ``L``:
-   per check, damped Newton on the cavity LLRs ``w`` (the marginals of
+2. **Projection** — the beliefs are made a point of the local polytope ``L``.
+   ``projection="peeled"`` (fw's route, :func:`_peeled_project_frame`): the
+   check beliefs start at the message cavities ``w = L - c2v`` and the bit
+   targets at ``1 / (1 + exp(L_i))``; checks whose belief lies within a tiny
+   slack of a face of their parity polytope become linear equations on the
+   targets, solved by peeling; then one exact linear step per check matches
+   its marginals to the targets, with the check quantities in closed form
+   (product measure conditioned on even parity). ``projection="newton"``
+   (:func:`_project_frame`): per check,
+   damped Newton on the cavity LLRs
+   ``w`` (the marginals of
    ``tau_c(S) ∝ exp(-sum_t S_t w_t)`` have Jacobian ``-Cov``) until the check's
    bit marginals equal the posteriors, then one multiplicative step
    ``tau(S) <- tau(S) (1 + sum_t c_t (S_t - m_t))`` with ``Cov c = q - m`` (linear
@@ -62,17 +71,39 @@ allocation, one bit per check so the check piece's minimum stays closed form,
 multiplier shifted by ``-alpha L_i``); the entropic bound then closes on its own,
 10–20 % fewer sweeps than the linear one and without its star sweeps.
 
-The entropic bound is evaluated at two multiplier sets, the Newton cavities of
-the projection and the message cavities ``L - c2v``, and the larger is kept.
+With the Newton projection the entropic bound is evaluated at two multiplier
+sets, the Newton cavities of the projection and the message cavities
+``L - c2v``, and the larger is kept (the peeled projection uses the message
+cavities only).
 With the Newton cavities alone the bound stalled at a relative gap of 1e-3 to
 1e-2 until messages moved by <= 1e-8 (the Newton step ``Cov^-1 (q - m)`` is
 large on nearly deterministic checks and the bits pay for it at first order);
 with the message cavities it closes a 1e-4 relative gap at a 3e-5 to 1e-4
 message change, after 30–41 sweeps instead of 55–70 (peg-504/1008 at 1.5 and
-2.5 dB). fw uses ``kappa_floor = 0.1``, Anderson memory 5 (memory 8 takes
-about 10 % fewer sweeps, but its Gram matrix costs more than that), first
-certificate at a 3e-5 message change, then every 4 sweeps. A certificate
-evaluation (projection and bound) costs about as much as 10–15 sweeps.
+2.5 dB).
+
+**Why the peeled projection.** At the message cavities the dual bound is
+already within 3e-5 (relative) of the optimum at a 3e-2 message change
+(2.5 dB, peg-1008-3-6; 3e-6 at 1e-2), yet the Newton projection certified
+only 2e-2 there: it mixed in the uniform point on every frame. TRW messages
+are large while the posteriors are moderate (median ``|L|`` ~ 3), so many
+check beliefs put almost all their mass next to their most likely odd
+pattern ``V``: the face ``sum_V x - sum_not-V x <= |V| - 1`` of the parity
+polytope is within ~1e-7 of the belief, and bit targets off by the message
+residual (1e-5 to 1e-4 in probability at a 1e-3 change) fall outside it;
+mixing with the uniform point then costs ``theta (F(u) - F(tau))``, first
+order in the residual. The peeled projection keeps such checks on their
+face (one equation each, solved for one bit that no other equation
+contains, in peeling order), so every check can be matched by a small step
+and the gap is second order: 3e-6 relative at a 3e-3 change. Where the
+linear step would leave an entry <= 0 or needs a coefficient above 1e4 (its
+rounding), that check is made by Newton, else by the additive correction and
+the uniform mix (rare at a 1e-2 change). The certificate uses a closed-form
+upper bound on each check's negentropy (``(1 + u) ln(1 + u) <= u + u^2``, about
+twice the check's Kullback–Leibler term); near misses and certified frames
+get their point written and F evaluated exactly. fw uses Anderson memory 3,
+first certificate at a 1e-2 message change, then every 3 sweeps: 15–21
+sweeps (peg-504/1008 at 1.5 and 2.5 dB).
 
 Box-plus is evaluated exactly at every magnitude (no clamped tanh/atanh, no
 overflow): ``a ⊞ b = sign(a) sign(b) min(|a|, |b|) + log1p(exp(-|a+b|))
@@ -1731,6 +1762,17 @@ class CertifiedTRW:
     check_every : int
         With ``anderson``: sweeps between two certificate evaluations of a frame
         not yet certified (each polishing round runs at most this many).
+    kappa_floor : float
+        Bits with ``kappa_i`` below this borrow entropy from one adjacent check for
+        the entropic bound (Heskes allocation; 0 = off).
+    projection : {"newton", "peeled"}
+        How the beliefs are made a point of ``L`` (module docstring): per-check
+        Newton with the uniform mix as fix-up, or the peeled projection (tight
+        checks kept on their face, closed-form certificate; needs ``linear=False``).
+    tight_factor : float
+        Peeled projection: a check counts as tight when its belief's slack on the
+        face of its most likely odd pattern is at most this times the summed
+        distance between its marginals and the bit targets.
     """
 
     def __init__(self, code, rho, *, lc=None, schedule: str = "layered", omega: float = 1.0,
