@@ -275,6 +275,41 @@ def _mp_batch(llr, check_ptr, edge_var, rho, layered, omega0, adaptive, omega_mi
 
 
 @nb.njit(**NUMBA_OPTS)
+def _trw_magnitudes(vbuf, d, tbuf):
+    """:func:`ldpcmarg.decoders.message_passing._sp_magnitudes` for one check, one pass fewer.
+
+    The complement form is exact whenever every input magnitude is at most 600
+    (the usual case for tree-reweighted cavities); that is checked on the way
+    instead of in a separate minimum scan, and only otherwise the general
+    function runs (same arguments: ``vbuf`` (2 d,) and ``tbuf`` (d + 1,)).
+    """
+    q = 0.0
+    large = False
+    for k in range(d):
+        x = abs(vbuf[k])
+        large = large or x > 600.0
+        u = math.exp(-x)
+        r = 2.0 * u / (1.0 + u)
+        tbuf[k] = q                 # complement of the prefix j < k
+        vbuf[d + k] = r
+        q = 1.0 if (r >= 1.0 or q >= 1.0) else min(q + r - q * r, 1.0)
+    if large:
+        _sp_magnitudes(vbuf, d, 600.0, LLR_MAX, tbuf)
+        return
+    q = 0.0
+    for kk in range(d):
+        k = d - 1 - kk
+        qf = tbuf[k]
+        qk = 1.0 if (qf >= 1.0 or q >= 1.0) else min(qf + q - qf * q, 1.0)
+        r = vbuf[d + k]
+        q = 1.0 if (r >= 1.0 or q >= 1.0) else min(q + r - q * r, 1.0)
+        if qk <= 0.0:
+            tbuf[k] = LLR_MAX
+        else:
+            tbuf[k] = min(math.log((2.0 - qk) / qk), LLR_MAX)
+
+
+@nb.njit(**NUMBA_OPTS)
 def _layered_sweep(llr, check_ptr, edge_var, rho, c2v, L, vbuf, tbuf):
     """One layered sweep of reweighted sum-product in place; returns the largest change.
 
@@ -296,7 +331,7 @@ def _layered_sweep(llr, check_ptr, edge_var, rho, c2v, L, vbuf, tbuf):
             v = L[edge_var[a + k]] - c2v[a + k]
             vbuf[k] = v
             sprod *= math.copysign(1.0, v)
-        _sp_magnitudes(vbuf, d, 600.0, LLR_MAX, tbuf)
+        _trw_magnitudes(vbuf, d, tbuf)
         for k in range(d):
             e = a + k
             old = c2v[e]
@@ -533,6 +568,58 @@ def _solve_scaled(C, rhs, d, x, piv):
         for u in range(k + 1, d):
             s -= C[k, u] * x[u]
         x[k] = s / C[k, k]
+    for t in range(d):
+        x[t] *= piv[t]
+    return True
+
+
+@nb.njit(**NUMBA_OPTS)
+def _solve_spd(C, rhs, d, x, piv):
+    """Solve the d x d covariance system C x = rhs by Cholesky after diagonal scaling.
+
+    The cheaper twin of :func:`_solve_scaled` for a covariance of a positive
+    distribution (symmetric positive definite). Rows/columns with a zero
+    diagonal get x = 0. Overwrites C (its lower triangle) and rhs. Returns False
+    when a pivot falls below 1e-14 (numerically singular after scaling).
+    """
+    for t in range(d):
+        piv[t] = 1.0 / math.sqrt(C[t, t]) if C[t, t] > 0.0 else 0.0
+    for t in range(d):
+        for u in range(t + 1):
+            C[t, u] *= piv[t] * piv[u]
+        rhs[t] *= piv[t]
+        if piv[t] == 0.0:
+            for u in range(t):
+                C[t, u] = 0.0
+            C[t, t] = 1.0
+            rhs[t] = 0.0
+    for k in range(d):
+        acc = C[k, k]
+        for u in range(k):
+            acc -= C[k, u] * C[k, u]
+        if acc < 1e-14:
+            return False
+        dk = math.sqrt(acc)
+        C[k, k] = dk
+        for t in range(k + 1, d):
+            if piv[t] == 0.0:
+                C[t, k] = 0.0
+                continue
+            acc = C[t, k]
+            for u in range(k):
+                acc -= C[t, u] * C[k, u]
+            C[t, k] = acc / dk
+    for t in range(d):          # forward: L y = rhs
+        acc = rhs[t]
+        for u in range(t):
+            acc -= C[t, u] * x[u]
+        x[t] = acc / C[t, t]
+    for tt in range(d):         # back: L^T x = y
+        t = d - 1 - tt
+        acc = x[t]
+        for u in range(t + 1, d):
+            acc -= C[u, t] * x[u]
+        x[t] = acc / C[t, t]
     for t in range(d):
         x[t] *= piv[t]
     return True
@@ -1406,7 +1493,7 @@ def _peeled_project_frame(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, 
                 c_e[a + t] = 0.0
             f_checks += rho[c] * negent
             continue
-        if _solve_scaled(C, rhs, d, cvec, piv):
+        if _solve_spd(C, rhs, d, cvec, piv):
             reach = 0.0
             cdotr = 0.0
             cmax = 0.0
@@ -1540,8 +1627,13 @@ def _emit_checks(check_ptr, offset, bit_ptr, bits, w_e, m_e, c_e, made, tl):
         fac0 = 1.0
         for t in range(d):
             fac0 -= c_e[a + t] * m_e[a + t]
-            p1[t] = _prob_one(w_e[a + t])
-            p0[t] = _prob_one(-w_e[a + t])
+            # P(S_t = 1) = 1 / (1 + exp(w)) and its complement from one exp
+            wt = w_e[a + t]
+            e = math.exp(-abs(wt))
+            small = e / (1.0 + e)
+            large = 1.0 / (1.0 + e)
+            p1[t] = small if wt >= 0.0 else large
+            p0[t] = large if wt >= 0.0 else small
         tot = 0.0
         for j in range(K):
             base = bp + j * d
