@@ -189,7 +189,7 @@ def render_table(results) -> str:
                 f"| `{p['code']}` | {p['ebn0_db']:g} dB | {run['threads']} | "
                 f"{p['sum_product_batch_s'] * 1e3:.2f} ms | "
                 f"{p['sum_product_single_s'] * 1e3:.2f} ms | "
-                f"{p['fw_batch_s'] * 1e3:.0f} ms | {p['fw_single_s'] * 1e3:.0f} ms | "
+                f"{p['fw_batch_s'] * 1e3:.1f} ms | {p['fw_single_s'] * 1e3:.1f} ms | "
                 f"{p['ratio_batch']:.0f}× ({p['ratio_batch_no_early_stop']:.0f}×) | "
                 f"{p['ratio_single']:.0f}× | {p['certified_share']:.0%} "
                 f"({p.get('batched_share', 0.0):.0%}) | "
