@@ -275,41 +275,6 @@ def _mp_batch(llr, check_ptr, edge_var, rho, layered, omega0, adaptive, omega_mi
 
 
 @nb.njit(**NUMBA_OPTS)
-def _trw_magnitudes(vbuf, d, tbuf):
-    """:func:`ldpcmarg.decoders.message_passing._sp_magnitudes` for one check, one pass fewer.
-
-    The complement form is exact whenever every input magnitude is at most 600
-    (the usual case for tree-reweighted cavities); that is checked on the way
-    instead of in a separate minimum scan, and only otherwise the general
-    function runs (same arguments: ``vbuf`` (2 d,) and ``tbuf`` (d + 1,)).
-    """
-    q = 0.0
-    large = False
-    for k in range(d):
-        x = abs(vbuf[k])
-        large = large or x > 600.0
-        u = math.exp(-x)
-        r = 2.0 * u / (1.0 + u)
-        tbuf[k] = q                 # complement of the prefix j < k
-        vbuf[d + k] = r
-        q = 1.0 if (r >= 1.0 or q >= 1.0) else min(q + r - q * r, 1.0)
-    if large:
-        _sp_magnitudes(vbuf, d, 600.0, LLR_MAX, tbuf)
-        return
-    q = 0.0
-    for kk in range(d):
-        k = d - 1 - kk
-        qf = tbuf[k]
-        qk = 1.0 if (qf >= 1.0 or q >= 1.0) else min(qf + q - qf * q, 1.0)
-        r = vbuf[d + k]
-        q = 1.0 if (r >= 1.0 or q >= 1.0) else min(q + r - q * r, 1.0)
-        if qk <= 0.0:
-            tbuf[k] = LLR_MAX
-        else:
-            tbuf[k] = min(math.log((2.0 - qk) / qk), LLR_MAX)
-
-
-@nb.njit(**NUMBA_OPTS)
 def _layered_sweep(llr, check_ptr, edge_var, rho, c2v, L, vbuf, tbuf):
     """One layered sweep of reweighted sum-product in place; returns the largest change.
 
@@ -331,7 +296,7 @@ def _layered_sweep(llr, check_ptr, edge_var, rho, c2v, L, vbuf, tbuf):
             v = L[edge_var[a + k]] - c2v[a + k]
             vbuf[k] = v
             sprod *= math.copysign(1.0, v)
-        _trw_magnitudes(vbuf, d, tbuf)
+        _sp_magnitudes(vbuf, d, 600.0, LLR_MAX, tbuf)
         for k in range(d):
             e = a + k
             old = c2v[e]
@@ -759,6 +724,31 @@ def _check_dual(w, bits, o, K, bp, d, kk, al, r, L_kk):
 
 
 @nb.njit(**NUMBA_OPTS)
+def _additive_correction(tl, bits, o, K, bp, d, q, mt):
+    """Add ``sum_t (q_t - m_t) (2 S_t - 1) / 2**(d-2)`` to a check belief (``mt`` its marginals).
+
+    The marginals become ``q`` exactly and the total stays 1 (over the even
+    patterns, ``sum_S S_u (2 S_t - 1) = 2**(d-2)`` for ``u = t`` and 0 otherwise), but
+    entries may turn negative: returns the least weight ``theta`` of the uniform
+    point that keeps every entry of this check >= 0 (0 if none is negative).
+    """
+    scale = 1.0 / 2.0 ** (d - 2)
+    theta = 0.0
+    for j in range(K):
+        corr = 0.0
+        base = bp + j * d
+        for t in range(d):
+            dl = q[t] - mt[t]
+            corr += dl if bits[base + t] else -dl
+        x = tl[o + j] + corr * scale
+        tl[o + j] = x
+        if x < 0.0:
+            u = 1.0 / K
+            theta = max(theta, -x / (u - x))
+    return theta
+
+
+@nb.njit(**NUMBA_OPTS)
 def _newton_match(w, q, bits, o, K, bp, d, newton_max, tl, mt, cvec, rhs, C, piv, res):
     """Positive check belief ``tl[o:o+K]`` with bit marginals ``q``, by damped Newton on ``w``.
 
@@ -906,27 +896,13 @@ def _project_frame(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, offset,
             # Newton failed: the bit targets lie (nearly) outside this check's parity
             # polytope (unconverged posteriors). Keep the message cavities for the
             # multipliers (near the dual optimum; Newton drifts off to infinity here),
-            # remove the mismatch exactly by adding
+            # remove the mismatch exactly by the additive correction, then the
+            # uniform mix below
             for k in range(d):
                 w[k] = w0[k]
-            # exact additive correction
-            # sum_t delta_t (2 S_t - 1) / 2**(d-2), then the uniform mix below
             lnz = _product_belief(w, bits, o, K, bp, d, tl)
             _check_marginals(tl, bits, o, K, bp, d, mt)
-            scale = 1.0 / 2.0 ** (d - 2)
-            for j in range(K):
-                corr = 0.0
-                base = bp + j * d
-                for t in range(d):
-                    dl = q[t] - mt[t]
-                    corr += dl if bits[base + t] else -dl
-                x = tl[o + j] + corr * scale
-                tl[o + j] = x
-                if x < 0.0:
-                    u = 1.0 / K
-                    need = -x / (u - x)
-                    if need > theta:
-                        theta = need
+            theta = max(theta, _additive_correction(tl, bits, o, K, bp, d, q, mt))
             negent = np.nan  # recomputed below from the entries
         _check_marginals(tl, bits, o, K, bp, d, mt)
         for t in range(d):
@@ -1544,20 +1520,7 @@ def _peeled_project_frame(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, 
         if not ok:
             # additive correction sum_t delta_t (2 S_t - 1) / 2**(d-2) (exact marginals,
             # may leave entries < 0: the uniform mix below restores them)
-            scale = 1.0 / 2.0 ** (d - 2)
-            for j in range(K):
-                corr = 0.0
-                base = bp + j * d
-                for t in range(d):
-                    dl = q[t] - mt[t]
-                    corr += dl if bits[base + t] else -dl
-                x = tl[o + j] + corr * scale
-                tl[o + j] = x
-                if x < 0.0:
-                    u = 1.0 / K
-                    need = -x / (u - x)
-                    if need > theta:
-                        theta = need
+            theta = max(theta, _additive_correction(tl, bits, o, K, bp, d, q, mt))
         negent = 0.0
         for j in range(o, o + K):
             negent += _xlogx(tl[j])

@@ -164,9 +164,13 @@ def _sp_magnitudes(vbuf, d, big, cap, tbuf):
     early stopping off, messages on a loopy graph grow towards ``LLR_MAX``
     once a frame has converged.)
     """
+    # one pass: prefix complements (q = 1 exactly once an input is an erasure:
+    # r = 1, tanh = 0, the message is then exactly 0; min(., 1) keeps rounding
+    # from pushing q above 1) and the two smallest magnitudes
     min1 = np.inf
     min2 = np.inf
     imin = d - d            # an index of d's integer type (d may be uint64)
+    q = 0.0
     for k in range(d):
         x = abs(vbuf[k])
         if x < min1:
@@ -175,16 +179,12 @@ def _sp_magnitudes(vbuf, d, big, cap, tbuf):
             imin = k
         elif x < min2:
             min2 = x
+        u = math.exp(-x)
+        r = 2.0 * u / (1.0 + u)
+        tbuf[k] = q                     # q of the prefix j < k
+        vbuf[d + k] = r
+        q = 1.0 if (r >= 1.0 or q >= 1.0) else min(q + r - q * r, 1.0)
     if min1 <= big:
-        # q = 1 exactly once an input is an erasure (r = 1, tanh = 0): the message
-        # is then exactly 0; min(., 1) keeps rounding from pushing q above 1.
-        q = 0.0
-        for k in range(d):
-            u = math.exp(-abs(vbuf[k]))
-            r = 2.0 * u / (1.0 + u)
-            tbuf[k] = q                 # q of the prefix j < k
-            vbuf[d + k] = r
-            q = 1.0 if (r >= 1.0 or q >= 1.0) else min(q + r - q * r, 1.0)
         q = 0.0
         for kk in range(d):
             k = d - 1 - kk
