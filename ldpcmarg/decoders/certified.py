@@ -724,6 +724,37 @@ def _check_dual(w, bits, o, K, bp, d, kk, al, r, L_kk):
 
 
 @nb.njit(**NUMBA_OPTS)
+def _mix_uniform(theta, tb, tl, offset):
+    """Mix the point with the uniform point by ``min(1, 2 theta)`` (returned).
+
+    ``theta`` is the least weight that makes every entry >= 0; twice it keeps
+    every entry away from exactly 0. Entries are clipped at 0 against rounding.
+    """
+    theta = min(1.0, 2.0 * theta)
+    for i in range(tb.shape[0]):
+        tb[i] = (1.0 - theta) * tb[i] + 0.5 * theta
+    for c in range(offset.shape[0] - 1):
+        o = offset[c]
+        K = offset[c + 1] - o
+        for j in range(o, o + K):
+            x = (1.0 - theta) * tl[j] + theta / K
+            tl[j] = x if x > 0.0 else 0.0
+    return theta
+
+
+@nb.njit(**NUMBA_OPTS)
+def _checks_negentropy(tl, offset, rho):
+    """sum_c rho_c sum_S tau_c(S) ln tau_c(S) over the local-codeword entries ``tl``."""
+    f = 0.0
+    for c in range(offset.shape[0] - 1):
+        a = 0.0
+        for j in range(offset[c], offset[c + 1]):
+            a += _xlogx(tl[j])
+        f += rho[c] * a
+    return f
+
+
+@nb.njit(**NUMBA_OPTS)
 def _additive_correction(tl, bits, o, K, bp, d, q, mt):
     """Add ``sum_t (q_t - m_t) (2 S_t - 1) / 2**(d-2)`` to a check belief (``mt`` its marginals).
 
@@ -936,22 +967,9 @@ def _project_frame(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, offset,
         for k in range(d):
             mu[a + k] = rho[c] * w[k]
     if theta > 0.0:
-        theta = min(1.0, 2.0 * theta)  # margin: no entry ends at exactly 0
-        for i in range(n):
-            tb[i] = (1.0 - theta) * tb[i] + 0.5 * theta
-        for c in range(m):
-            o = offset[c]
-            K = offset[c + 1] - o
-            for j in range(o, o + K):
-                x = (1.0 - theta) * tl[j] + theta / K
-                tl[j] = x if x > 0.0 else 0.0
+        theta = _mix_uniform(theta, tb, tl, offset)
     if math.isnan(f_checks) or theta > 0.0:
-        f_checks = 0.0
-        for c in range(m):
-            a = 0.0
-            for j in range(offset[c], offset[c + 1]):
-                a += _xlogx(tl[j])
-            f_checks += rho[c] * a
+        f_checks = _checks_negentropy(tl, offset, rho)
     # bits: F term lam t + kappa (t ln t + (1-t) ln(1-t)); dual term
     # min over [0, 1] of b t + kappa (...), b = lam - sum_c mu_ic:
     # -kappa softplus(-b / kappa) for kappa > 0, min(0, b) for kappa <= 0 (endpoints)
@@ -1527,22 +1545,11 @@ def _peeled_project_frame(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, 
         f_checks += rho[c] * negent
     if theta > 0.0:
         # every check made, mixed with the uniform point, F evaluated exactly
-        theta = min(1.0, 2.0 * theta)  # margin: no entry ends at exactly 0
         _emit_checks(check_ptr, offset, bit_ptr, bits, w_e, m_e, c_e, made, tl)
-        for i in range(n):
-            tb[i] = (1.0 - theta) * tb[i] + 0.5 * theta
-        f_checks = 0.0
+        theta = _mix_uniform(theta, tb, tl, offset)
+        f_checks = _checks_negentropy(tl, offset, rho)
         for c in range(m):
             made[c] = True
-            o = offset[c]
-            K = offset[c + 1] - o
-            acc = 0.0
-            for j in range(o, o + K):
-                x = (1.0 - theta) * tl[j] + theta / K
-                x = x if x > 0.0 else 0.0
-                tl[j] = x
-                acc += _xlogx(x)
-            f_checks += rho[c] * acc
     # 5. bits: F term and dual term at b_i = lam_i - sum_c mu_ic (kappa_i L_i at
     #    the message cavities, plus the allocation's shift)
     f_bits = 0.0
