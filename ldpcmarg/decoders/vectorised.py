@@ -589,7 +589,10 @@ def _sp_update(src, dst, c2v, edge_var, a, d, cap, vb, xb, fb, bb, st, sg, layer
 
     Per-lane state in ``st`` (rows of ``W``): 0 ``m1``, 1 ``m2``, 2 index of
     ``m1``, 3 ``S``, 4/5 syndrome counts (as :func:`_ms_read`), 6 ``eps``,
-    7 ``qcap``, 8 split flag, 9 running suffix. ``xb`` holds ``x`` then
+    7 ``qcap``, 8 split flag, 9 running suffix. ``layered``: True writes the
+    posteriors ``dst = cavity + message`` (row-serial), False adds the messages
+    to ``dst`` (flooding), 2 writes the messages only (the tree-reweighted lane
+    sweep of :mod:`ldpcmarg.decoders.certified` weights them itself). ``xb`` holds ``x`` then
     ``r~``, ``fb`` and ``bb`` the prefix and suffix complements. Every index is unsigned (a signed
     index brings numba's negative-index test, which LLVM turned into gathers).
     """
@@ -675,6 +678,8 @@ def _sp_update(src, dst, c2v, edge_var, a, d, cap, vb, xb, fb, bb, st, sg, layer
             other = (st[8 * W + w] > zero) & (st[2 * W + w] != kf)
             mag = m1c if other else mag
             c2v[be + w] = mag * sg[w] * math.copysign(one, vb[bk + w])
+    if layered == 2:
+        return      # messages only: the caller updates its posteriors itself
     for k in range(d):
         e = a + k
         bi = edge_var[e] * W
