@@ -271,8 +271,8 @@ def test_lane_anderson_kernel_follows_the_scalar_kernel(mem, keep):
     assert np.mean(lanes[5][:, 0] == scalar[5][:, 0]) >= 0.9
 
 
-def test_lane_route_certificate_bounds_true_suboptimality():
-    # the lane warm start (batches of >= 32 frames) feeds the same certificate: it
+def test_lane_route_certificate_bounds_true_suboptimality(monkeypatch):
+    # the lane warm start (large batches) feeds the same certificate: it
     # must stay >= F(tau) - F* (weak duality, Boyd & Vandenberghe 2004 §5.1.3) with F*
     # from the per-frame solver at a relative gap of 1e-11, and -(F - gap) >= ln Z
     # (Wainwright, Jaakkola & Willsky 2005). Four distinct frames, each nine times:
@@ -285,7 +285,14 @@ def test_lane_route_certificate_bounds_true_suboptimality():
     ref = ref_dec.decode(base)
     ct = CertifiedTRW(code, ref_dec.rho, tol=1e-2, polish_rounds=0, anderson=3,
                       kappa_floor=0.1, projection="peeled", lanes=True)
+    # whatever the thread count, take the lane route (and check that it was taken)
+    monkeypatch.setattr(cert, "_LANE_SPEEDUP", 1e9)
+    calls = []
+    lane_kernel = cert._anderson_lanes_batch
+    monkeypatch.setattr(cert, "_anderson_lanes_batch",
+                        lambda *a: calls.append(a[8]) or lane_kernel(*a))
     r = ct.run(lam, gap_tol=0)
+    assert calls
     prob = fw.FWProblem(code, ct.rho)
     for f in range(lam.shape[0]):
         fv = prob.free_energy(lam[f], r.tau_bits[f], r.tau_local[f])
@@ -296,3 +303,17 @@ def test_lane_route_certificate_bounds_true_suboptimality():
     scalar = CertifiedTRW(code, ct.rho, tol=1e-2, polish_rounds=0, anderson=3, kappa_floor=0.1,
                           projection="peeled").run(base, gap_tol=0)
     assert np.allclose(r.tau_bits[:4], scalar.tau_bits, atol=1e-9)
+
+
+@pytest.mark.parametrize("threads, count, chunks", [(1, 256, 1), (2, 256, 2), (1, 40, 1),
+                                                     (2, 40, 0), (2, 64, 0), (2, 128, 2),
+                                                     (1, 20, 0), (1, 0, 0)])
+def test_lane_groups_only_where_they_beat_one_frame_at_a_time(monkeypatch, threads, count,
+                                                              chunks):
+    # cost model of _lane_chunks: a lane group costs LANES lane-sweeps however full,
+    # a scalar frame-sweep _LANE_SPEEDUP (1.8) of them, both spread over the threads
+    code = random_regular_code(24, 3, 6, 4)
+    ct = CertifiedTRW(code, np.full(code.m, 0.5), anderson=3, lanes=True)
+    monkeypatch.setattr(cert.nb, "get_num_threads", lambda: threads)
+    assert ct._lane_chunks(count) == chunks
+    assert CertifiedTRW(code, np.full(code.m, 0.5), anderson=3)._lane_chunks(count) == 0
