@@ -21,9 +21,10 @@ shared machine hits both alike:
   (per-frame fallback of frames the batched route did not certify, Python);
 * a study of the batched route of ``ldpcmarg.decoders.certified``: fw's
   setting (peeled projection; Anderson memory 3 on sweeps with frames across
-  SIMD lanes; first certificate at a 1e-2 message change, then every 3 sweeps;
-  entropic certificate with Heskes' allocation), the same with one frame at a
-  time (``lanes=False``, the previous default), and the previous route (Newton
+  SIMD lanes, float32 lanes up to the first certificate; first certificate at a
+  1e-2 message change, then every 3 sweeps; entropic certificate with Heskes'
+  allocation), the same with float64 lanes throughout, with one frame at a time
+  (``lanes=False``, the previous default), and the previous route (Newton
   projection with the uniform mix, first certificate at a 3e-5 message change,
   then every 4 sweeps).
 
@@ -231,10 +232,10 @@ def main(argv=None):
     if args.quick:
         args.codes, args.ebn0, args.frames, args.single, args.threads = (
             args.codes[:1], args.ebn0[:1], 3, 2, args.threads[:1])
-    # the route fw uses (peeled projection, Anderson memory 3 on lane sweeps, first
-    # certificate at a 1e-2 message change, then every 3 sweeps; entropic certificate
-    # with Heskes' allocation of entropy to bits with kappa_i < 0.1), the same with
-    # one-frame-at-a-time sweeps, and the
+    # the route fw uses (peeled projection, Anderson memory 3 on lane sweeps, float32
+    # lanes up to the first certificate at a 1e-2 message change, then every 3 sweeps;
+    # entropic certificate with Heskes' allocation of entropy to bits with kappa_i <
+    # 0.1), the same with float64 lanes throughout, with one frame at a time, and the
     # previous route (Newton projection with the uniform mix: first certificate at a
     # 3e-5 message change, then every 4 sweeps)
     from ldpcmarg.decoders.frank_wolfe import _BATCHED_SETTINGS
@@ -242,7 +243,8 @@ def main(argv=None):
     fw_route = dict(_BATCHED_SETTINGS)
     previous = {"anderson": 5, "tol": 3e-5, "polish_rounds": 16, "check_every": 4,
                 "linear": False, "kappa_floor": 0.1, "projection": "newton"}
-    args.study = [fw_route, dict(fw_route, lanes=False), previous]
+    args.study = [fw_route, dict(fw_route, lane_float32=False), dict(fw_route, lanes=False),
+                  previous]
     if args.quick:
         args.study = args.study[:1]
     if args.child:
