@@ -22,9 +22,10 @@ shared machine hits both alike:
 * a study of the batched route of ``ldpcmarg.decoders.certified``: fw's
   setting (peeled projection; Anderson memory 3 on sweeps with frames across
   SIMD lanes, float32 lanes up to the first certificate; first certificate at a
-  1e-2 message change, then every 3 sweeps; entropic certificate with Heskes'
-  allocation), the same with float64 lanes throughout, with one frame at a time
-  (``lanes=False``, the previous default), and the previous route (Newton
+  5e-3 message change, then every 3 sweeps; entropic certificate with Heskes'
+  allocation), the same with float64 lanes throughout, the previous default
+  (one frame at a time, first certificate at a 1e-2 change), and the route
+  before it (Newton
   projection with the uniform mix, first certificate at a 3e-5 message change,
   then every 4 sweeps).
 
@@ -233,18 +234,18 @@ def main(argv=None):
         args.codes, args.ebn0, args.frames, args.single, args.threads = (
             args.codes[:1], args.ebn0[:1], 3, 2, args.threads[:1])
     # the route fw uses (peeled projection, Anderson memory 3 on lane sweeps, float32
-    # lanes up to the first certificate at a 1e-2 message change, then every 3 sweeps;
+    # lanes up to the first certificate at a 5e-3 message change, then every 3 sweeps;
     # entropic certificate with Heskes' allocation of entropy to bits with kappa_i <
-    # 0.1), the same with float64 lanes throughout, with one frame at a time, and the
-    # previous route (Newton projection with the uniform mix: first certificate at a
-    # 3e-5 message change, then every 4 sweeps)
+    # 0.1), the same with float64 lanes throughout, the previous default (one frame at a
+    # time, first certificate at a 1e-2 change), and the Newton route before it (the
+    # uniform mix: first certificate at a 3e-5 message change, then every 4 sweeps)
     from ldpcmarg.decoders.frank_wolfe import _BATCHED_SETTINGS
 
     fw_route = dict(_BATCHED_SETTINGS)
     previous = {"anderson": 5, "tol": 3e-5, "polish_rounds": 16, "check_every": 4,
                 "linear": False, "kappa_floor": 0.1, "projection": "newton"}
-    args.study = [fw_route, dict(fw_route, lane_float32=False), dict(fw_route, lanes=False),
-                  previous]
+    peeled_scalar = dict(fw_route, tol=1e-2, lanes=False, lane_float32=False)
+    args.study = [fw_route, dict(fw_route, lane_float32=False), peeled_scalar, previous]
     if args.quick:
         args.study = args.study[:1]
     if args.child:
