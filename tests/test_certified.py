@@ -351,3 +351,24 @@ def test_float32_lane_approach_tracks_the_float64_iteration():
     r64, r32 = (ct.run(lam2, gap_tol=1e-4) for ct in runs)
     assert np.all(r32.certified) and np.all(r64.certified)
     assert np.mean(r32.iterations == r64.iterations) >= 0.9
+
+
+def test_float32_lanes_only_for_a_loose_first_tolerance(monkeypatch):
+    # float32 messages of magnitude ~300 are spaced 3e-5 apart: a tight first
+    # tolerance must run in float64 lanes (common practice: float32 unit roundoff
+    # 6e-8 times the magnitude), a loose one in float32 lanes
+    code = random_regular_code(48, 3, 6, 2)
+    rho = lm.make_decoder("fw", code, entropy="trw").rho
+    lam = np.stack([awgn_llr(code, 0.8, 990 + s) for s in range(40)])
+    seen = []
+    lane_kernel = cert._anderson_lanes_batch
+    monkeypatch.setattr(cert, "_anderson_lanes_batch",
+                        lambda *a: seen.append(a[3].dtype) or lane_kernel(*a))
+    for tol in (5e-3, 1e-5):
+        ct = CertifiedTRW(code, rho, tol=tol, anderson=3, kappa_floor=0.1, projection="peeled",
+                          lanes=True, lane_float32=True, polish_rounds=0)
+        ct._lane_chunks = lambda count: 1 if count else 0
+        seen.clear()
+        r = ct.run(lam, gap_tol=1e-4)
+        assert seen == [np.float32 if tol > 1e-3 else np.float64]
+        assert np.all(r.residual <= tol)

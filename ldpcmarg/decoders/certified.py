@@ -151,6 +151,9 @@ PROJECTIONS = ("newton", "peeled")
 #: Frame-sweeps of the scalar Anderson kernel per lane-frame sweep (measured on
 #: peg-1008-3-6, AVX2, float64: ~110 us against ~60 us per frame and sweep).
 _LANE_SPEEDUP = 1.8
+#: Smallest first tolerance for float32 lanes: messages of magnitude ~300 have a
+#: float32 spacing of 3e-5, so a float32 sweep's change cannot go much below 1e-4.
+_F32_TOL_MIN = 1e-3
 
 
 # ------------------------------------------------------------------ kernels
@@ -2158,6 +2161,7 @@ class CertifiedTRW:
         message change of ``tol``) in float32 lanes, twice as many per register;
         later sweeps in float64. The certificate holds for any messages; float32
         rounding (~1e-6 on messages of magnitude 10) is far below a 5e-3 change.
+        Only for ``tol >= 1e-3`` (below that, float64 lanes).
     """
 
     def __init__(self, code, rho, *, lc=None, schedule: str = "layered", omega: float = 1.0,
@@ -2315,7 +2319,8 @@ class CertifiedTRW:
                 if chunks:
                     # float32 lanes for the first approach only (twice the lanes per
                     # register; a 5e-3 message change is far above their rounding)
-                    rho_l = self._rho32 if (rnd == 0 and self.lane_float32) else self.rho
+                    f32 = rnd == 0 and self.lane_float32 and tol >= _F32_TOL_MIN
+                    rho_l = self._rho32 if f32 else self.rho
                     _anderson_lanes_batch(lam, self._cp_u, self._ev_u, rho_l, cap, tol,
                                           self.anderson, False, active, chunks, c2v, L,
                                           hist_x, hist_g, hist_m, state, resid, self._dmax)
