@@ -137,7 +137,7 @@ from .lp_dual import (
     _theta_kernel,
 )
 from .message_passing import _sp_magnitudes
-from .vectorised import _SP_OPTS, LANES, _log_pos64, _sp_update
+from .vectorised import _SP_OPTS, LANES, _log_pos64, _sp_scratch, _sp_update
 
 __all__ = ["boxplus", "CertifiedBatch", "CertifiedTRW", "SCHEDULES"]
 
@@ -332,6 +332,43 @@ def _refresh_posteriors(llr, check_ptr, edge_var, rho, c2v, L):
 
 
 @nb.njit(**NUMBA_OPTS)
+def _gauss_solve(A, rhs, k, x, pivot_min):
+    """Solve the k x k system A x = rhs by Gaussian elimination with partial pivoting.
+
+    Overwrites ``A`` and ``rhs``. Returns False (``x`` undefined) when a pivot's
+    magnitude is at or below ``pivot_min``.
+    """
+    for col in range(k):
+        p = col
+        for r in range(col + 1, k):
+            if abs(A[r, col]) > abs(A[p, col]):
+                p = r
+        if abs(A[p, col]) <= pivot_min:
+            return False
+        if p != col:
+            for u in range(k):
+                tmp = A[col, u]
+                A[col, u] = A[p, u]
+                A[p, u] = tmp
+            tmp = rhs[col]
+            rhs[col] = rhs[p]
+            rhs[p] = tmp
+        for r in range(col + 1, k):
+            f = A[r, col] / A[col, col]
+            if f != 0.0:
+                for u in range(col, k):
+                    A[r, u] -= f * A[col, u]
+                rhs[r] -= f * rhs[col]
+    for cc in range(k):
+        r = k - 1 - cc
+        acc = rhs[r]
+        for u in range(r + 1, k):
+            acc -= A[r, u] * x[u]
+        x[r] = acc / A[r, r]
+    return True
+
+
+@nb.njit(**NUMBA_OPTS)
 def _anderson_solve(Mt, rhs, gam, k):
     """Anderson coefficients from the (k x k) Gram matrix ``Mt`` (overwritten).
 
@@ -348,33 +385,9 @@ def _anderson_solve(Mt, rhs, gam, k):
     for a in range(k):
         Mt[a, a] += 1e-10 * scale
         rhs[a] = 1.0
-    for col in range(k):
-        p = col
-        for r in range(col + 1, k):
-            if abs(Mt[r, col]) > abs(Mt[p, col]):
-                p = r
-        if abs(Mt[p, col]) <= 1e-300:
-            return 0.0
-        if p != col:
-            for u in range(k):
-                tmp = Mt[col, u]
-                Mt[col, u] = Mt[p, u]
-                Mt[p, u] = tmp
-            tmp = rhs[col]
-            rhs[col] = rhs[p]
-            rhs[p] = tmp
-        for r in range(col + 1, k):
-            f = Mt[r, col] / Mt[col, col]
-            for u in range(col, k):
-                Mt[r, u] -= f * Mt[col, u]
-            rhs[r] -= f * rhs[col]
+    if not _gauss_solve(Mt, rhs, k, gam, 1e-300):
+        return 0.0
     tot = 0.0
-    for aa in range(k):
-        a = k - 1 - aa
-        sacc = rhs[a]
-        for u in range(a + 1, k):
-            sacc -= Mt[a, u] * gam[u]
-        gam[a] = sacc / Mt[a, a]
     for a in range(k):
         tot += gam[a]
     if not (abs(tot) > 1e-300) or not math.isfinite(tot):
@@ -617,12 +630,7 @@ def _anderson_group(frames, llr, check_ptr, edge_var, rho, max_iter, tol, mem, k
     Gl = np.zeros((slots, E * W), dtype=dt)
     Ml = np.zeros((slots, slots, LANES))
     gl = np.zeros((slots, LANES), dtype=dt)
-    vb = np.zeros(dmax * W, dtype=dt)
-    xb = np.zeros(dmax * W, dtype=dt)
-    fb = np.zeros(dmax * W, dtype=dt)
-    bb = np.zeros(dmax * W, dtype=dt)
-    st = np.zeros(10 * W, dtype=dt)
-    sg = np.zeros(W, dtype=dt)
+    vb, xb, fb, bb, st, sg = _sp_scratch(dmax, chan)
     md = np.zeros(W, dtype=dt)
     acc = np.zeros(W)
     Mt = np.empty((slots, slots))
@@ -793,33 +801,8 @@ def _solve_scaled(C, rhs, d, x, piv):
         if piv[t] == 0.0:
             C[t, t] = 1.0
             rhs[t] = 0.0
-    for k in range(d):
-        p = k
-        for t in range(k + 1, d):
-            if abs(C[t, k]) > abs(C[p, k]):
-                p = t
-        if abs(C[p, k]) < 1e-14:
-            return False
-        if p != k:
-            for u in range(d):
-                tmp = C[k, u]
-                C[k, u] = C[p, u]
-                C[p, u] = tmp
-            tmp = rhs[k]
-            rhs[k] = rhs[p]
-            rhs[p] = tmp
-        for t in range(k + 1, d):
-            f = C[t, k] / C[k, k]
-            if f != 0.0:
-                for u in range(k, d):
-                    C[t, u] -= f * C[k, u]
-                rhs[t] -= f * rhs[k]
-    for kk in range(d):
-        k = d - 1 - kk
-        s = rhs[k]
-        for u in range(k + 1, d):
-            s -= C[k, u] * x[u]
-        x[k] = s / C[k, k]
+    if not _gauss_solve(C, rhs, d, x, 1e-14):
+        return False
     for t in range(d):
         x[t] *= piv[t]
     return True

@@ -559,6 +559,17 @@ def _sp_combine(q, r, eps, qcap):
     return qcap if full else val
 
 
+@nb.njit(**NUMBA_OPTS)
+def _sp_scratch(dmax, like):
+    """Scratch of :func:`_sp_update` for checks of degree <= ``dmax``, dtype of ``like``:
+    ``vb``, ``xb``, ``fb``, ``bb`` (dmax * LANES,), ``st`` (10 * LANES,), ``sg`` (LANES,)."""
+    W = np.uint64(LANES)
+    dt = like.dtype
+    return (np.zeros(dmax * W, dtype=dt), np.zeros(dmax * W, dtype=dt),
+            np.zeros(dmax * W, dtype=dt), np.zeros(dmax * W, dtype=dt),
+            np.zeros(10 * W, dtype=dt), np.zeros(W, dtype=dt))
+
+
 @nb.njit(**_SP_OPTS)
 def _sp_update(src, dst, c2v, edge_var, a, d, cap, vb, xb, fb, bb, st, sg, layered):
     """Sum-product update of one check in the complement form, all lanes at once.
@@ -821,12 +832,7 @@ def _float_group(frames, llr, check_ptr, edge_var, mode, layered, alpha, beta, m
     L = np.zeros(n * W, dtype=dt)
     Lnew = np.zeros(n * W, dtype=dt)
     c2v = np.zeros(E * W, dtype=dt)
-    vb = np.zeros(dmax * W, dtype=dt)
-    xb = np.zeros(dmax * W, dtype=dt)
-    fb = np.zeros(dmax * W, dtype=dt)
-    bb = np.zeros(dmax * W, dtype=dt)
-    st = np.zeros(10 * W, dtype=dt)
-    sg = np.zeros(W, dtype=dt)
+    vb, xb, fb, bb, st, sg = _sp_scratch(dmax, chan)
     open_ = np.zeros(W, dtype=np.bool_)
     bad = np.zeros(W, dtype=np.bool_)
     cont = np.zeros(W, dtype=np.bool_)
