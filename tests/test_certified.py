@@ -372,3 +372,22 @@ def test_float32_lanes_only_for_a_loose_first_tolerance(monkeypatch):
         r = ct.run(lam, gap_tol=1e-4)
         assert seen == [np.float32 if tol > 1e-3 else np.float64]
         assert np.all(r.residual <= tol)
+
+
+def test_local_codewords_out_of_canonical_order_are_refused():
+    # the point writer builds each check's patterns by doubling, which needs the
+    # canonical order (even-weight integers increasing): a permuted table must be
+    # refused with a clear error, not silently mis-assigned
+    import dataclasses
+
+    code = random_regular_code(24, 3, 6, 4)
+    lc = code.local_codewords()
+    rho = np.full(code.m, 0.5)
+    CertifiedTRW(code, rho, lc=lc)                       # canonical: accepted
+    bits = lc.bits.copy()
+    d = int(code.check_ptr[1] - code.check_ptr[0])
+    a = int(lc.bit_ptr[0])
+    table = bits[a:a + d * 2 ** (d - 1)].reshape(-1, d)
+    table[[1, 2]] = table[[2, 1]]                        # swap two patterns of check 0
+    with pytest.raises(lm.InputError, match="canonical order"):
+        CertifiedTRW(code, rho, lc=dataclasses.replace(lc, bits=bits))

@@ -1815,7 +1815,7 @@ def _peeled_project_frame(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, 
         f_checks += rho[c] * negent
     if theta > 0.0:
         # every check made, mixed with the uniform point, F evaluated exactly
-        _emit_checks(check_ptr, offset, bit_ptr, bits, w_e, m_e, c_e, made, tl)
+        _emit_checks(check_ptr, offset, w_e, m_e, c_e, made, tl)
         theta = _mix_uniform(theta, tb, tl, offset)
         f_checks = _checks_negentropy(tl, offset, rho)
         for c in range(m):
@@ -1843,19 +1843,32 @@ def _peeled_project_frame(llr, L, c2v, check_ptr, edge_var, var_ptr, var_edges, 
 
 
 @nb.njit(**NUMBA_OPTS)
-def _emit_checks(check_ptr, offset, bit_ptr, bits, w_e, m_e, c_e, made, tl):
+def _emit_checks(check_ptr, offset, w_e, m_e, c_e, made, tl):
     """Write ``tl = b(S) (1 + sum_t c_t (S_t - m_t))`` of every check not made yet.
 
     ``b`` is the product measure at the cavities ``w_e`` on the even patterns,
     normalised by its own total (so the entries are exact products, no ``exp``
     per pattern); ``m_e``, ``c_e`` as left by :func:`_peeled_project_frame`.
+
+    Needs the canonical pattern order of
+    :class:`ldpcmarg.code.parity_check.LocalCodewords` (even-weight integers in
+    increasing order, bit ``t`` = position ``t``; checked by :class:`CertifiedTRW`):
+    pattern ``j`` has positions ``1..d-1`` equal to the binary digits of ``j`` and
+    position 0 equal to their parity. The products and ``sum_t c_t S_t`` over the
+    positions ``1..d-1`` are then built by doubling (one multiplication and one
+    addition per pattern and level, ``2 K`` in all, instead of ``K d`` selects).
     """
     m = check_ptr.shape[0] - 1
-    dmax = 0
+    dmax = 1
+    kmax = 1
     for c in range(m):
         dmax = max(dmax, check_ptr[c + 1] - check_ptr[c])
+        kmax = max(kmax, offset[c + 1] - offset[c])
     p0 = np.empty(dmax, dtype=np.float64)
     p1 = np.empty(dmax, dtype=np.float64)
+    prod = np.empty(kmax, dtype=np.float64)
+    lin = np.empty(kmax, dtype=np.float64)
+    odd = np.empty(kmax, dtype=np.bool_)
     for c in range(m):
         if made[c]:
             continue
@@ -1863,7 +1876,6 @@ def _emit_checks(check_ptr, offset, bit_ptr, bits, w_e, m_e, c_e, made, tl):
         d = check_ptr[c + 1] - a
         o = offset[c]
         K = offset[c + 1] - o
-        bp = bit_ptr[c]
         fac0 = 1.0
         for t in range(d):
             fac0 -= c_e[a + t] * m_e[a + t]
@@ -1874,19 +1886,26 @@ def _emit_checks(check_ptr, offset, bit_ptr, bits, w_e, m_e, c_e, made, tl):
             large = 1.0 / (1.0 + e)
             p1[t] = small if wt >= 0.0 else large
             p0[t] = large if wt >= 0.0 else small
+        prod[0] = 1.0
+        lin[0] = fac0
+        odd[0] = False
+        h = 1
+        for t in range(1, d):
+            ct = c_e[a + t]
+            for j in range(h):
+                prod[j + h] = prod[j] * p1[t]
+                prod[j] *= p0[t]
+                lin[j + h] = lin[j] + ct
+                odd[j + h] = not odd[j]
+            h *= 2
+        c0 = c_e[a]
         tot = 0.0
         for j in range(K):
-            base = bp + j * d
-            x = 1.0
-            for t in range(d):
-                x *= p1[t] if bits[base + t] else p0[t]
+            x = prod[j] * (p1[0] if odd[j] else p0[0])
             tl[o + j] = x
             tot += x
         for j in range(K):
-            base = bp + j * d
-            fac = fac0
-            for t in range(d):
-                fac += c_e[a + t] * bits[base + t]
+            fac = lin[j] + c0 if odd[j] else lin[j]
             tl[o + j] = tl[o + j] / tot * fac
 
 
@@ -1938,7 +1957,7 @@ def _emit_frame(llr, check_ptr, edge_var, offset, bit_ptr, bits, rho, kappa, tb,
     ``out`` (2,): F(tau) (nats) and the largest |bit target - check marginal|
     (rounding level: the point lies in L up to it).
     """
-    _emit_checks(check_ptr, offset, bit_ptr, bits, w_e, m_e, c_e, made, tl)
+    _emit_checks(check_ptr, offset, w_e, m_e, c_e, made, tl)
     m = check_ptr.shape[0] - 1
     n = tb.shape[0]
     f = 0.0
@@ -2080,6 +2099,22 @@ class CertifiedBatch:
     linear_gap: np.ndarray
 
 
+def _require_canonical_patterns(lc, code) -> None:
+    """Refuse local codewords that are not in the canonical order of
+    :func:`ldpcmarg.code.parity_check._even_patterns` (the point writer relies on it)."""
+    from ..code.parity_check import _even_patterns
+
+    degrees = np.diff(np.asarray(code.check_ptr))
+    for d in np.unique(degrees):
+        ref = _even_patterns(int(d)).ravel()
+        for c in np.flatnonzero(degrees == d):
+            a = int(lc.bit_ptr[c])
+            if not np.array_equal(lc.bits[a:a + ref.size], ref):
+                raise InputError(f"The local codewords of check {c} are not in the canonical "
+                                 "order of LocalCodewords; build them with "
+                                 "code.local_codewords().")
+
+
 class CertifiedTRW:
     """Batched certified marginals for a convex (tree-reweighted) free energy.
 
@@ -2171,6 +2206,7 @@ class CertifiedTRW:
         self.code = code
         self.lc = lc if lc is not None else code.local_codewords()
         self._gr = _graph_of(code, self.lc)
+        _require_canonical_patterns(self.lc, code)
         self.rho = np.ascontiguousarray(rho, dtype=np.float64)
         self._rho32 = self.rho.astype(np.float32)
         self.kappa = 1.0 - np.bincount(code.edge_var, weights=self.rho[code.edge_check],
