@@ -1936,13 +1936,7 @@ def _check_negent_mismatch(tl, bits, o, K, bp, d, tb, edge_var, a, mt, buf):
     ``buf`` (>= K,) is scratch for :func:`_xlogx_sum`.
     """
     negent = _xlogx_sum(tl[o:o + K], buf)
-    for t in range(d):
-        mt[t] = 0.0
-    for j in range(K):
-        x = tl[o + j]
-        base = bp + j * d
-        for t in range(d):
-            mt[t] += x * bits[base + t]
+    _check_marginals(tl, bits, o, K, bp, d, mt)
     worst = 0.0
     for t in range(d):
         worst = max(worst, abs(mt[t] - tb[edge_var[a + t]]))
